@@ -1,0 +1,87 @@
+"""Shared pieces of the subcommands: loading inputs, reporting errors."""
+
+from __future__ import annotations
+
+import json
+import os
+import sys
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+
+from ..core.fileio import load_npy
+from ..core.images import read_image
+from ..core.network import Network, as_codes
+from ..core.plan import Plan
+
+IMAGE_SUFFIXES = (".png", ".jpg", ".jpeg", ".bmp", ".gif", ".tif", ".tiff", ".webp", ".ppm", ".pgm", ".pnm")
+
+
+class CliError(Exception):
+    """A one-line error for stderr (exit code 2)."""
+
+
+def run_guarded(go: Callable[[], int]) -> int:
+    """Run ``go``; bad input becomes one line on stderr and exit code 2."""
+    try:
+        return go()
+    except CliError as exc:
+        print(str(exc), file=sys.stderr)
+        return 2
+    except (TypeError, ValueError, OSError, KeyError) as exc:
+        msg = str(exc).strip().splitlines()
+        print(f"fxnet: {msg[0] if msg else type(exc).__name__}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("fxnet: interrupted", file=sys.stderr)
+        return 130
+    except SystemExit as exc:  # argparse --help / --version
+        return int(exc.code or 0)
+
+
+def load_network(path: str) -> Network:
+    return Network.load(path)
+
+
+def load_plan(path: str, network: Network) -> Plan:
+    return Plan.load(path, network)
+
+
+def load_input(path: str, network: Network) -> tuple[np.ndarray, str]:
+    """Codes from an image file or a ``.npy`` of codes; returns ``(codes, note)``.
+
+    Images come back H x W x 3 (uint8); ``.npy`` N x n_in. Errors name the file.
+    """
+    lower = path.lower()
+    if lower.endswith(".npy"):
+        arr = load_npy(path)
+        try:
+            flat, _ = as_codes(arr, network.input_bits, network.n_in, what="codes")
+            if arr.ndim != 2:
+                raise ValueError(f"codes must be N x {network.n_in}, not shape {arr.shape}")
+        except (TypeError, ValueError) as exc:
+            raise type(exc)(f"{path}: {exc}") from None
+        return arr, ""
+    if not os.path.exists(path):
+        raise CliError(f"fxnet: {path}: no such file")
+    img = read_image(path)
+    if network.n_in != 3 or network.input_bits != 8:
+        raise CliError(
+            f"fxnet: {path}: an image gives 3 inputs of 8 bits, but the network has {network.n_in} inputs of "
+            f"{network.input_bits} bits (give a .npy of codes instead)"
+        )
+    return img.codes, img.note
+
+
+def print_json(obj: Any) -> None:
+    print(json.dumps(obj, allow_nan=False, sort_keys=False))
+
+
+def check_output_path(path: str, suffix: str | None = None) -> str:
+    parent = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(parent):
+        raise CliError(f"fxnet: {path}: the directory {parent} does not exist")
+    if suffix and not path.endswith(suffix):
+        raise CliError(f"fxnet: {path}: the output file name must end in {suffix}")
+    return path

@@ -1,0 +1,178 @@
+"""Safe file input and output shared by every writer and reader of the package.
+
+* Every file is written to a temporary file beside its target and renamed into
+  place (:func:`atomic_write_bytes`, :func:`atomic_write_text`,
+  :func:`atomic_write_json`), so a crash mid-way never leaves a half-written file
+  and an older file of the same name survives intact.
+* JSON is read with bounds (:func:`load_json`): size, nesting depth, duplicate
+  keys and the non-standard ``NaN``/``Infinity`` tokens are all errors that name
+  the file.
+* ``.npy`` files are read with ``allow_pickle=False`` (:func:`load_npy`).
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = [
+    "FileFormatError",
+    "MAX_JSON_BYTES",
+    "MAX_JSON_DEPTH",
+    "atomic_write_bytes",
+    "atomic_write_text",
+    "atomic_write_json",
+    "atomic_writer",
+    "load_json",
+    "load_npy",
+    "dumps_json",
+]
+
+MAX_JSON_BYTES = 64 * 1024 * 1024
+MAX_JSON_DEPTH = 64
+
+
+class FileFormatError(ValueError):
+    """A file could not be read: the message starts with the file's name."""
+
+
+def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mode: str = "wb") -> Path:
+    """Call ``write(fileobj)`` on a temporary file, then rename it to ``path``.
+
+    The temporary file lives in the target's directory (so the rename is atomic
+    on POSIX). On any exception the temporary file is removed and the old
+    target, if any, is untouched.
+    """
+    path = Path(path)
+    directory = path.parent if str(path.parent) else Path(".")
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
+    try:
+        with os.fdopen(fd, mode) as fh:
+            write(fh)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return path
+
+
+def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
+    """Write ``data`` to ``path`` atomically (temporary file + rename)."""
+    return atomic_writer(path, lambda fh: fh.write(data), "wb")
+
+
+def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
+    """Write UTF-8 ``text`` to ``path`` atomically."""
+    return atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def dumps_json(obj: Any) -> str:
+    """Canonical JSON text of the package (2-space indent, no NaN, newline)."""
+    return json.dumps(obj, indent=2, allow_nan=False, ensure_ascii=False) + "\n"
+
+
+def atomic_write_json(path: str | os.PathLike[str], obj: Any) -> Path:
+    """Write ``obj`` as UTF-8 JSON to ``path`` atomically."""
+    return atomic_write_text(path, dumps_json(obj))
+
+
+def _reject_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not valid JSON (numbers must be finite)")
+
+
+def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for key, value in pairs:
+        if key in out:
+            raise ValueError(f"duplicate key {key!r}")
+        out[key] = value
+    return out
+
+
+def _depth(text: str) -> int:
+    depth = best = 0
+    in_str = esc = False
+    for ch in text:
+        if in_str:
+            if esc:
+                esc = False
+            elif ch == "\\":
+                esc = True
+            elif ch == '"':
+                in_str = False
+        elif ch == '"':
+            in_str = True
+        elif ch in "[{":
+            depth += 1
+            best = max(best, depth)
+        elif ch in "]}":
+            depth -= 1
+    return best
+
+
+def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) -> Any:
+    """Read a bounded, strict UTF-8 JSON file.
+
+    Raises
+    ------
+    FileFormatError
+        ``"<file>: <problem>"`` for a missing, oversized, non-UTF-8, too deeply
+        nested or invalid file.
+    """
+    name = os.fspath(path)
+    try:
+        size = os.path.getsize(name)
+        if size > max_bytes:
+            raise FileFormatError(f"{name}: file is {size} bytes, more than the limit of {max_bytes}")
+        with open(name, "rb") as fh:
+            raw = fh.read(max_bytes + 1)
+    except FileNotFoundError:
+        raise FileFormatError(f"{name}: no such file") from None
+    except IsADirectoryError:
+        raise FileFormatError(f"{name}: is a directory, not a file") from None
+    except PermissionError:
+        raise FileFormatError(f"{name}: permission denied") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise FileFormatError(f"{name}: not UTF-8 text (byte {exc.start})") from None
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    if _depth(text) > MAX_JSON_DEPTH:
+        raise FileFormatError(f"{name}: JSON nesting deeper than {MAX_JSON_DEPTH} levels")
+    try:
+        return json.loads(text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant)
+    except json.JSONDecodeError as exc:
+        raise FileFormatError(f"{name}: invalid JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
+    except ValueError as exc:
+        raise FileFormatError(f"{name}: {exc}") from None
+    except RecursionError:
+        raise FileFormatError(f"{name}: JSON nesting too deep") from None
+
+
+def load_npy(path: str | os.PathLike[str]) -> np.ndarray:
+    """Read a ``.npy`` array without pickle; errors name the file."""
+    name = os.fspath(path)
+    try:
+        arr = np.load(name, allow_pickle=False)
+    except FileNotFoundError:
+        raise FileFormatError(f"{name}: no such file") from None
+    except IsADirectoryError:
+        raise FileFormatError(f"{name}: is a directory, not a file") from None
+    except (ValueError, OSError, EOFError) as exc:
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise FileFormatError(f"{name}: not a readable .npy array ({msg})") from None
+    if not isinstance(arr, np.ndarray):
+        raise FileFormatError(f"{name}: expected one .npy array, not an archive")
+    return arr

@@ -1,0 +1,742 @@
+"""The bit-exact integer network: what the hardware computes, per ``semantics.md``.
+
+Two parts:
+
+* :func:`quantise` turns a float :class:`~fxnet_widgets.core.network.Network` and
+  a :class:`~fxnet_widgets.core.plan.Plan` into an :class:`IntegerNetwork`: the
+  integer weights and biases, shifts, tables, ranges, static events
+  (``weight_clip``, ``bias_clip``), the guaranteed-safe accumulator width of
+  every neuron and the int64-safety proof. Cached by value.
+* :func:`emulate` runs input codes through it and returns an :class:`Emulation`
+  with every accumulator (``s_A``), every code, the decisions and the per-neuron
+  event counts. Work is cached by value: the same image with a new plan reuses
+  its per-image decomposition, and layers whose plan prefix is unchanged are not
+  recomputed.
+
+Implementation notes (speed without changing a bit):
+
+* the exact sum ``s`` is a sum of integer *product tables* gathered by input
+  code (``T_i[u] = q_w,i * u``, with the bias folded into the first); for 8-bit
+  inputs two inputs share one 65536-entry table indexed by ``u0 << 8 | u1``;
+* values are held in the smallest integer dtype that the interval analysis
+  proves sufficient (int32 when every sum fits), and all neurons of a layer are
+  processed together as an N x n_out block;
+* every step that cannot change a value (no overflow possible, no clamp
+  possible) is skipped on the proof, and its event count is zero.
+
+Examples
+--------
+>>> from fxnet_widgets.core.network import Network
+>>> from fxnet_widgets.core.plan import Plan
+>>> net = Network.from_layers([([[1.0, 1.0, 1.0]], [-1.0], "sigmoid")])
+>>> plan = Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=18,
+...                     table_bits=14, table_frac=10, out_bits=8)
+>>> r = emulate(net, plan, np.array([[128, 128, 128]]))
+>>> int(r.acc[0][0, 0]), int(r.out_codes[0, 0]), int(r.decisions[0])
+(4096, 159, 1)
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Hashable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .formats import bits_for_range, q_notation, round_float, shift_round, signed_range, unsigned_range
+from .network import Network, activate, as_codes
+from .plan import LayerPlan, Plan
+
+__all__ = [
+    "EVENT_NAMES",
+    "IntegerLayer",
+    "IntegerNetwork",
+    "Emulation",
+    "quantise",
+    "emulate",
+    "table_inputs",
+    "clear_caches",
+]
+
+EVENT_NAMES = ("acc_overflow", "table_low", "table_high", "weight_clip", "bias_clip")
+_INT64_MAX = (1 << 63) - 1
+
+
+# ---------------------------------------------------------------------------------
+# small value-keyed LRU caches
+class _LRU:
+    def __init__(self, size: int) -> None:
+        self.size = size
+        self.data: OrderedDict[Hashable, Any] = OrderedDict()
+        self.lock = threading.Lock()
+        self.hits = 0
+        self.misses = 0
+
+    def get(self, key: Hashable, make: Callable[[], Any]) -> Any:
+        with self.lock:
+            if key in self.data:
+                self.data.move_to_end(key)
+                self.hits += 1
+                return self.data[key]
+        value = make()
+        with self.lock:
+            self.misses += 1
+            self.data[key] = value
+            while len(self.data) > self.size:
+                self.data.popitem(last=False)
+        return value
+
+    def clear(self) -> None:
+        with self.lock:
+            self.data.clear()
+            self.hits = self.misses = 0
+
+
+_QUANT_CACHE = _LRU(64)
+_INPUT_CACHE = _LRU(4)
+_LAYER_CACHE = _LRU(12)
+_FLOAT_CACHE = _LRU(4)
+
+
+def clear_caches() -> None:
+    """Empty every cache of the kernel (for benchmarks and tests)."""
+    for c in (_QUANT_CACHE, _INPUT_CACHE, _LAYER_CACHE, _FLOAT_CACHE):
+        c.clear()
+
+
+def cache_stats() -> dict[str, tuple[int, int]]:
+    """``{cache: (hits, misses)}`` of the kernel's caches."""
+    return {
+        "quantise": (_QUANT_CACHE.hits, _QUANT_CACHE.misses),
+        "input": (_INPUT_CACHE.hits, _INPUT_CACHE.misses),
+        "layer": (_LAYER_CACHE.hits, _LAYER_CACHE.misses),
+        "float": (_FLOAT_CACHE.hits, _FLOAT_CACHE.misses),
+    }
+
+
+# ---------------------------------------------------------------------------------
+# the static integer network
+@dataclass(frozen=True, eq=False)
+class IntegerLayer:
+    """One layer as hardware holds it (all integers; see ``semantics.md``).
+
+    Attributes
+    ----------
+    q_w : (n_out, n_in) int64 weight codes (after clamp)
+    q_b : (n_out,) int64 bias codes (after clamp to the accumulator range)
+    q_b_raw : tuple of Python ints, bias codes before the clamp
+    weight_clip, bias_clip : (n_out,) int64 static event counts
+    in_frac, in_min, in_max : frac and reachable code range of the layer's inputs
+    shift : k of steps 5 and 7 (right shift if positive, left if negative)
+    table : (2**table_bits,) int64 entries in address order, or None (relu/identity)
+    index_min, index_max : the clamp range of the table index (or of the output)
+    sum_min, sum_max : per neuron, the interval bound of the exact sum s (clamped bias)
+    safe_acc_bits : per neuron, the guaranteed-safe accumulator width
+    """
+
+    index: int
+    activation: str
+    plan: LayerPlan
+    q_w: np.ndarray
+    q_b: np.ndarray
+    q_b_raw: tuple[int, ...]
+    weight_clip: np.ndarray
+    bias_clip: np.ndarray
+    in_frac: int
+    in_min: int
+    in_max: int
+    shift: int
+    table: np.ndarray | None
+    index_min: int
+    index_max: int
+    out_frac: int
+    out_min: int
+    out_max: int
+    out_signed: bool
+    sum_min: tuple[int, ...]
+    sum_max: tuple[int, ...]
+    safe_min: tuple[int, ...]
+    safe_max: tuple[int, ...]
+    safe_acc_bits: np.ndarray
+    code_min: int
+    code_max: int
+
+    @property
+    def n_in(self) -> int:
+        return int(self.q_w.shape[1])
+
+    @property
+    def n_out(self) -> int:
+        return int(self.q_w.shape[0])
+
+    @property
+    def acc_frac(self) -> int:
+        """Fraction bits of the accumulator: ``in_frac + weight_frac``."""
+        return self.in_frac + self.plan.weight_frac
+
+    def table_address(self, index: np.ndarray) -> np.ndarray:
+        """Offset-binary table address of a (clamped) index: ``a + 2**(T-1)``."""
+        return np.asarray(index, dtype=np.int64) - self.index_min
+
+    def describe(self) -> str:
+        p = self.plan
+        s = (
+            f"layer {self.index + 1} ({self.activation}, {self.n_in}->{self.n_out}): "
+            f"weights {q_notation(p.weight_bits, p.weight_frac)}, "
+            f"accumulator {q_notation(p.acc_bits, self.acc_frac)} {p.acc_overflow}, "
+        )
+        if self.table is not None:
+            s += f"table {2 ** p.table_bits} x {p.out_bits} b (index {q_notation(p.table_bits, p.table_frac)}, shift {self.shift}), "
+        else:
+            s += f"shift {self.shift}, "
+        s += f"output {q_notation(p.out_bits, self.out_frac, self.out_signed)}"
+        return s
+
+
+@dataclass(frozen=True, eq=False)
+class IntegerNetwork:
+    """The integer network of a (network, plan) pair."""
+
+    network: Network
+    plan: Plan
+    layers: tuple[IntegerLayer, ...]
+    input_bits: int
+    threshold_code: int | None
+    notes: tuple[str, ...]
+
+    @property
+    def safe_acc_bits(self) -> list[np.ndarray]:
+        return [L.safe_acc_bits for L in self.layers]
+
+
+def table_inputs(n_entries: int, index_min: int, table_frac: int, k: int, index_round: str, sample: str) -> np.ndarray:
+    """The real input ``t`` of every table entry, in address order (float64).
+
+    ``edge``: ``t = a / 2**Ft``. ``mid``: the midpoint of the smallest and
+    largest integer ``s_A`` that map to ``a`` (over all integers), over
+    ``2**(Fi+Fw)``; equal to ``edge`` when ``k <= 0``.
+    """
+    a = np.arange(index_min, index_min + n_entries, dtype=np.float64)
+    if sample == "edge" or k <= 0:
+        return np.ldexp(a, -table_frac)
+    h = 2.0 ** -(k + 1)  # half an s LSB, in index units
+    if index_round == "floor":
+        d = np.full_like(a, 0.5 - h)
+    elif index_round == "trunc":
+        d = np.sign(a) * (0.5 - h)
+    elif index_round == "half-up":
+        d = np.full_like(a, -h)
+    elif index_round == "half-away":
+        d = -np.sign(a) * h
+    else:  # half-even: symmetric sets, midpoint exactly a * 2**k
+        d = np.zeros_like(a)
+    return np.ldexp(a + d, -table_frac)
+
+
+def _code_range(activation: str, bits: int) -> tuple[int, int, bool]:
+    if activation in ("sigmoid", "relu"):
+        lo, hi = unsigned_range(bits)
+        return lo, hi, False
+    lo, hi = signed_range(bits)
+    return lo, hi, True
+
+
+def _interval(q_w: np.ndarray, u_min: int, u_max: int, bias: list[int]) -> tuple[list[int], list[int]]:
+    lo_list, hi_list = [], []
+    for j in range(q_w.shape[0]):
+        lo = hi = int(bias[j])
+        for q in q_w[j].tolist():
+            a, b = q * u_min, q * u_max
+            lo += min(a, b)
+            hi += max(a, b)
+        lo_list.append(lo)
+        hi_list.append(hi)
+    return lo_list, hi_list
+
+
+def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
+    plan.check(network)
+    notes = []
+    layers: list[IntegerLayer] = []
+    in_frac = network.input_bits
+    u_min, u_max = 0, (1 << network.input_bits) - 1
+    for li, (L, lp) in enumerate(zip(network.layers, plan.layers)):
+        where = f"layers[{li}]"
+        w = np.asarray(L.weights, dtype=np.float64)
+        if li == 0 and network.input_scale == "full":
+            n = 1 << network.input_bits
+            w = w * (n / (n - 1))
+            notes.append(
+                f"input scale 'full': layer-1 weights multiplied by 2^{network.input_bits}/(2^{network.input_bits}-1)"
+                " before quantising"
+            )
+        # 1. weights
+        qw_f = round_float(np.ldexp(w, lp.weight_frac), lp.weight_round)
+        wlo, whi = signed_range(lp.weight_bits)
+        clipped = (qw_f < wlo) | (qw_f > whi)
+        q_w = np.clip(qw_f, wlo, whi).astype(np.int64)
+        weight_clip = clipped.sum(axis=1).astype(np.int64)
+        # 2. bias (aligned to the product's scale)
+        acc_frac = in_frac + lp.weight_frac
+        qb_f = round_float(np.ldexp(np.asarray(L.bias, dtype=np.float64), acc_frac), lp.weight_round)
+        q_b_raw = [int(v) for v in qb_f.tolist()]
+        alo, ahi = signed_range(lp.acc_bits)
+        q_b_list = [min(max(v, alo), ahi) for v in q_b_raw]
+        bias_clip = np.array([int(v != c) for v, c in zip(q_b_raw, q_b_list)], dtype=np.int64)
+        q_b = np.array(q_b_list, dtype=np.int64)
+        # 3. int64-safety proof and the guaranteed-safe width
+        sum_min, sum_max = _interval(q_w, u_min, u_max, q_b_list)
+        worst = max(max(abs(v) for v in sum_min), max(abs(v) for v in sum_max))
+        if worst > _INT64_MAX:
+            raise ValueError(
+                f"{where}: the exact sum can reach {worst}, which does not fit in int64; "
+                "use fewer weight bits or a smaller input range"
+            )
+        safe_min, safe_max = _interval(q_w, u_min, u_max, q_b_raw)
+        safe_bits = np.array([bits_for_range(a, b) for a, b in zip(safe_min, safe_max)], dtype=np.int64)
+        # 5.-7. index, table, output
+        out_lo, out_hi, out_signed = _code_range(L.activation, lp.out_bits)
+        out_frac = lp.resolved_out_frac(L.activation)
+        if L.activation in ("sigmoid", "tanh"):
+            assert lp.table_bits is not None and lp.table_frac is not None
+            k = acc_frac - lp.table_frac
+            ilo, ihi = signed_range(lp.table_bits)
+            t = table_inputs(1 << lp.table_bits, ilo, lp.table_frac, k, lp.index_round, lp.table_sample)
+            v = activate(t, L.activation)
+            entries = round_float(np.ldexp(v, out_frac), lp.table_round)
+            table = np.clip(entries, out_lo, out_hi).astype(np.int64)
+            table.setflags(write=False)
+            code_min, code_max = int(table.min()), int(table.max())
+        else:
+            k = acc_frac - out_frac
+            ilo, ihi = out_lo, out_hi
+            table = None
+            code_min, code_max = out_lo, out_hi
+        for arr in (q_w, q_b, weight_clip, bias_clip, safe_bits):
+            arr.setflags(write=False)
+        layers.append(
+            IntegerLayer(
+                index=li, activation=L.activation, plan=lp, q_w=q_w, q_b=q_b, q_b_raw=tuple(q_b_raw),
+                weight_clip=weight_clip, bias_clip=bias_clip, in_frac=in_frac, in_min=u_min, in_max=u_max,
+                shift=k, table=table, index_min=ilo, index_max=ihi, out_frac=out_frac, out_min=out_lo,
+                out_max=out_hi, out_signed=out_signed, sum_min=tuple(sum_min), sum_max=tuple(sum_max),
+                safe_min=tuple(safe_min), safe_max=tuple(safe_max), safe_acc_bits=safe_bits,
+                code_min=code_min, code_max=code_max,
+            )
+        )  # fmt: skip
+        in_frac = out_frac
+        u_min, u_max = code_min, code_max
+    last = layers[-1]
+    thr = None
+    if last.n_out == 1:
+        thr = math.ceil(network.threshold * 2.0**last.out_frac)
+    return IntegerNetwork(network, plan, tuple(layers), network.input_bits, thr, tuple(notes))
+
+
+def quantise(network: Network, plan: Plan) -> IntegerNetwork:
+    """The integer network of ``(network, plan)`` (cached by value)."""
+    if not isinstance(network, Network):
+        raise TypeError(f"network must be a Network, not {type(network).__name__}")
+    if not isinstance(plan, Plan):
+        raise TypeError(f"plan must be a Plan, not {type(plan).__name__}")
+    return _QUANT_CACHE.get((network.digest, plan), lambda: _quantise_uncached(network, plan))
+
+
+# ---------------------------------------------------------------------------------
+# per-element arithmetic (steps 4-7) on exact sums
+def _smallest_int(lo: int, hi: int) -> type:
+    for dt in (np.int8, np.int16, np.int32):
+        info = np.iinfo(dt)
+        if info.min <= lo and hi <= info.max:
+            return dt
+    return np.int64
+
+
+def post_accumulate(layer: IntegerLayer, s: np.ndarray, lo: int | None = None, hi: int | None = None) -> dict[str, Any]:
+    """Steps 4-7 of the contract on exact sums ``s`` (any shape, int64).
+
+    ``lo``/``hi`` optionally bound ``s`` (from interval analysis); steps that
+    cannot change any value in that bound are skipped. Returns ``acc`` (s_A),
+    ``codes`` and boolean arrays ``acc_overflow``, ``table_low``, ``table_high``
+    (or None where no event is possible).
+    """
+    p = layer.plan
+    s = np.asarray(s)
+    if lo is None:
+        lo, hi = (int(s.min()), int(s.max())) if s.size else (0, 0)
+    assert hi is not None
+    alo, ahi = signed_range(p.acc_bits)
+    ov = None
+    if lo < alo or hi > ahi:
+        s64 = s.astype(np.int64, copy=False)
+        ov = (s64 < alo) | (s64 > ahi)
+        if p.acc_overflow == "wrap":
+            mask = np.int64((1 << p.acc_bits) - 1)
+            s_a = ((s64 - np.int64(alo)) & mask) + np.int64(alo)
+        else:
+            s_a = np.clip(s64, alo, ahi)
+        lo, hi = max(lo, alo), min(hi, ahi)
+        if p.acc_overflow == "wrap":
+            lo, hi = alo, ahi
+        s_a = s_a.astype(_smallest_int(alo, ahi), copy=False)
+    else:
+        s_a = s
+    k = layer.shift
+    ilo, ihi = layer.index_min, layer.index_max
+    if k > 0:
+        a = shift_round(s_a, k, p.index_round)
+        a_lo = int(shift_round(np.array([lo]), k, p.index_round)[0])
+        a_hi = int(shift_round(np.array([hi]), k, p.index_round)[0])
+    elif k == 0:
+        a, a_lo, a_hi = s_a, lo, hi
+    else:
+        m = -k
+        a_lo, a_hi = lo << m, hi << m
+        low = high = None
+        if a_lo >= ilo and a_hi <= ihi:
+            a = s_a.astype(np.int64) << np.int64(m)
+        else:
+            # decide the clamp in the unshifted domain so the shift cannot overflow
+            c_hi = ihi >> m
+            c_lo = -((-ilo) >> m)
+            s64 = s_a.astype(np.int64)
+            low, high = s64 < c_lo, s64 > c_hi
+            a = np.clip(s64, c_lo, c_hi) << np.int64(m)
+            a = np.where(low, ilo, np.where(high, ihi, a))
+            a_lo, a_hi = ilo, ihi
+    if k >= 0:
+        low = high = None
+        if a_lo < ilo or a_hi > ihi:
+            a = np.asarray(a, dtype=np.int64)
+            low = a < ilo
+            high = a > ihi
+            a = np.clip(a, ilo, ihi)
+    if layer.table is not None:
+        idx = np.asarray(a) - ilo if ilo != 0 else a
+        codes = layer.table[idx]
+        codes = codes.astype(_smallest_int(layer.code_min, layer.code_max), copy=False)
+    else:
+        codes = np.asarray(a).astype(_smallest_int(ilo, ihi), copy=False)
+    return {"acc": s_a, "codes": codes, "acc_overflow": ov, "table_low": low, "table_high": high}
+
+
+# ---------------------------------------------------------------------------------
+# the per-image decomposition (cached by value)
+@dataclass(frozen=True, eq=False)
+class _Prepared:
+    key: str
+    flat: np.ndarray  # N x n_in original codes (validated)
+    shape: tuple[int, ...] | None
+    columns: tuple[np.ndarray, ...]  # contiguous per-input codes, smallest unsigned dtype
+    pairs: tuple[tuple[int, int, np.ndarray], ...]  # (i, j, index = u_i << bits | u_j)
+    singles: tuple[int, ...]
+    n: int
+
+
+def _input_key(arr: np.ndarray, bits: int, n_in: int) -> str:
+    h = hashlib.blake2b(digest_size=16)
+    h.update(f"{arr.shape}|{arr.dtype.str}|{bits}|{n_in}|".encode())
+    h.update(np.ascontiguousarray(arr).data)
+    return h.hexdigest()
+
+
+def _prepare(codes: Any, bits: int, n_in: int) -> _Prepared:
+    arr = np.asarray(codes)
+    if arr.dtype == np.bool_ or arr.dtype.kind not in "iu":
+        as_codes(arr, bits, n_in)  # raises the documented TypeError
+    key = _input_key(arr, bits, n_in)
+
+    def make() -> _Prepared:
+        flat, shape = as_codes(arr, bits, n_in)
+        cdt = np.uint8 if bits <= 8 else np.uint16
+        cols = tuple(np.ascontiguousarray(flat[:, i]).astype(cdt, copy=False) for i in range(n_in))
+        pairs = []
+        singles = list(range(n_in))
+        if bits <= 8 and n_in >= 2 and flat.shape[0] >= 4096:
+            singles = []
+            for i in range(0, n_in - 1, 2):
+                idx = (cols[i].astype(np.uint16) << np.uint16(bits)) | cols[i + 1]
+                pairs.append((i, i + 1, idx))
+            if n_in % 2:
+                singles.append(n_in - 1)
+        return _Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]))
+
+    return _INPUT_CACHE.get(key, make)
+
+
+def _sum_dtype(layer: IntegerLayer) -> type:
+    return _smallest_int(min(min(layer.sum_min), -1), max(max(layer.sum_max), 1))
+
+
+def _first_sum(layer: IntegerLayer, prep: _Prepared, bits: int) -> np.ndarray:
+    """Exact sums of layer 1 from product tables (N x n_out)."""
+    dt = np.int32 if _sum_dtype(layer) in (np.int8, np.int16, np.int32) else np.int64
+    q_w = layer.q_w
+    n_codes = 1 << bits
+    u = np.arange(n_codes, dtype=np.int64)
+    s = None
+    bias_done = False
+    for i, j, idx in prep.pairs:
+        tab = (u[:, None, None] * q_w[:, i][None, None, :] + u[None, :, None] * q_w[:, j][None, None, :])
+        tab = tab.reshape(n_codes * n_codes, -1)
+        if not bias_done:
+            tab = tab + layer.q_b[None, :]
+            bias_done = True
+        part = tab.astype(dt).take(idx, axis=0)
+        s = part if s is None else s + part
+    for i in prep.singles:
+        tab = u[:, None] * q_w[:, i][None, :]
+        if not bias_done:
+            tab = tab + layer.q_b[None, :]
+            bias_done = True
+        part = tab.astype(dt).take(prep.columns[i], axis=0)
+        s = part if s is None else s + part
+    assert s is not None
+    return s
+
+
+def _next_sum(layer: IntegerLayer, codes: np.ndarray) -> np.ndarray:
+    """Exact sums of a later layer from the previous codes (N x n_out)."""
+    dt = np.int32 if _sum_dtype(layer) in (np.int8, np.int16, np.int32) else np.int64
+    span = layer.in_max - layer.in_min + 1
+    n = codes.shape[0]
+    if span * layer.n_in > (1 << 22) or (n < 4 * span and n < 65536):
+        s = codes.astype(np.int64) @ layer.q_w.T + layer.q_b[None, :]
+        return s.astype(dt, copy=False)
+    u = np.arange(layer.in_min, layer.in_max + 1, dtype=np.int64)
+    s = None
+    for i in range(layer.n_in):
+        tab = u[:, None] * layer.q_w[:, i][None, :]
+        if i == 0:
+            tab = tab + layer.q_b[None, :]
+        col = codes[:, i]
+        idx = col - np.asarray(layer.in_min, dtype=col.dtype) if layer.in_min != 0 else col
+        part = tab.astype(dt).take(idx, axis=0)
+        s = part if s is None else s + part
+    assert s is not None
+    return s
+
+
+@dataclass(frozen=True, eq=False)
+class _LayerOut:
+    acc: np.ndarray
+    codes: np.ndarray
+    events: dict[str, np.ndarray]
+    observed_min: np.ndarray
+    observed_max: np.ndarray
+
+
+def _run_layer(layer: IntegerLayer, s: np.ndarray) -> _LayerOut:
+    lo = min(layer.sum_min)
+    hi = max(layer.sum_max)
+    out = post_accumulate(layer, s, lo, hi)
+    n_out = layer.n_out
+    events = {}
+    for name in ("acc_overflow", "table_low", "table_high"):
+        flags = out[name]
+        events[name] = (
+            np.zeros(n_out, dtype=np.int64) if flags is None else np.count_nonzero(flags, axis=0).astype(np.int64)
+        )
+    events["weight_clip"] = layer.weight_clip
+    events["bias_clip"] = layer.bias_clip
+    if s.shape[0]:
+        omin, omax = s.min(axis=0).astype(np.int64), s.max(axis=0).astype(np.int64)
+    else:
+        omin = omax = np.zeros(n_out, dtype=np.int64)
+    return _LayerOut(out["acc"], out["codes"], events, omin, omax)
+
+
+# ---------------------------------------------------------------------------------
+# the result
+class Emulation:
+    """Result of :func:`emulate` (read-only arrays).
+
+    Attributes
+    ----------
+    out_codes : (N, n_out) or (H, W, n_out) output codes of the last layer
+    decisions : (N,) or (H, W) int64 decisions
+    acc : list, per layer, of s_A arrays (N x n_out_l or H x W x n_out_l)
+    codes : list, per layer, of output codes
+    events : list, per layer, of ``{event name: (n_out_l,) int64 counts}``
+    safe_acc_bits : list, per layer, of (n_out_l,) guaranteed-safe widths
+    observed_min, observed_max : list, per layer, of the exact sum's range on the data
+    float_out, float_decisions : the float reference (computed on first access, cached)
+    """
+
+    def __init__(self, intnet: IntegerNetwork, prep: _Prepared, outs: list[_LayerOut]) -> None:
+        self.integer_network = intnet
+        self.network = intnet.network
+        self.plan = intnet.plan
+        self._prep = prep
+        self._outs = outs
+        self.shape = prep.shape
+        self.n = prep.n
+        self.events = [o.events for o in outs]
+        self.safe_acc_bits = [L.safe_acc_bits for L in intnet.layers]
+        self.observed_min = [o.observed_min for o in outs]
+        self.observed_max = [o.observed_max for o in outs]
+        last = outs[-1].codes
+        if last.shape[1] == 1:
+            assert intnet.threshold_code is not None
+            dec = (last[:, 0].astype(np.int64) >= intnet.threshold_code).astype(np.int64)
+        else:
+            dec = np.argmax(last, axis=1).astype(np.int64)
+        self._decisions = dec
+
+    def _shaped(self, a: np.ndarray, per_sample: bool = False) -> np.ndarray:
+        if self.shape is None:
+            return a
+        return a.reshape(self.shape) if per_sample else a.reshape(*self.shape, a.shape[-1])
+
+    @property
+    def inputs(self) -> np.ndarray:
+        """The validated input codes (N x n_in)."""
+        return self._prep.flat
+
+    @property
+    def out_codes(self) -> np.ndarray:
+        return self._shaped(self._outs[-1].codes)
+
+    @property
+    def decisions(self) -> np.ndarray:
+        return self._shaped(self._decisions, per_sample=True)
+
+    @property
+    def acc(self) -> list[np.ndarray]:
+        return [self._shaped(o.acc) for o in self._outs]
+
+    @property
+    def codes(self) -> list[np.ndarray]:
+        return [self._shaped(o.codes) for o in self._outs]
+
+    @property
+    def observed_acc_bits(self) -> list[np.ndarray]:
+        """Per layer and neuron, the width that holds the exact sums seen on the data."""
+        return [
+            np.array([bits_for_range(a, b) for a, b in zip(mn.tolist(), mx.tolist())], dtype=np.int64)
+            for mn, mx in zip(self.observed_min, self.observed_max)
+        ]
+
+    @property
+    def float_out(self) -> np.ndarray:
+        key = (self.network.digest, self._prep.key)
+        out = _FLOAT_CACHE.get(key, lambda: self.network.predict(self._prep.flat))
+        return self._shaped(out)
+
+    @property
+    def float_decisions(self) -> np.ndarray:
+        return self.network.decide(self.float_out)
+
+    @property
+    def mismatch(self) -> int:
+        """Number of samples whose fixed-point decision differs from float."""
+        return int(np.count_nonzero(self.decisions != self.float_decisions))
+
+    def event_totals(self) -> dict[str, int]:
+        """Event counts summed over every neuron of every layer."""
+        return {name: int(sum(int(e[name].sum()) for e in self.events)) for name in EVENT_NAMES}
+
+    def summary_dict(self) -> dict[str, Any]:
+        """A JSON-ready summary (deterministic)."""
+        layers = []
+        for L, e, mn, mx, ob in zip(
+            self.integer_network.layers, self.events, self.observed_min, self.observed_max, self.observed_acc_bits
+        ):
+            layers.append(
+                {
+                    "layer": L.index + 1,
+                    "activation": L.activation,
+                    "format": L.describe(),
+                    "acc_bits": L.plan.acc_bits,
+                    "safe_acc_bits": L.safe_acc_bits.tolist(),
+                    "observed_min": mn.tolist(),
+                    "observed_max": mx.tolist(),
+                    "observed_acc_bits": ob.tolist(),
+                    "events": {k: v.tolist() for k, v in e.items()},
+                }
+            )
+        return {
+            "samples": self.n,
+            "shape": list(self.shape) if self.shape is not None else None,
+            "mismatch": self.mismatch,
+            "mismatch_fraction": self.mismatch / self.n if self.n else 0.0,
+            "events": self.event_totals(),
+            "layers": layers,
+            "notes": list(self.integer_network.notes),
+        }
+
+    def summary(self) -> str:
+        """Deterministic text summary (for notebooks, reports and the CLI)."""
+        d = self.summary_dict()
+        shape = "x".join(map(str, self.shape)) + " image" if self.shape is not None else f"{self.n} samples"
+        lines = [
+            f"emulation of {shape}: {d['mismatch']} decisions differ from float "
+            f"({100 * d['mismatch_fraction']:.3f} %)",
+        ]
+        for L in d["layers"]:
+            lines.append("  " + L["format"])
+            ev = ", ".join(f"{k} {sum(v)}" for k, v in L["events"].items())
+            lines.append(f"    events: {ev}")
+            lines.append(
+                f"    safe accumulator width {L['safe_acc_bits']} (plan {L['acc_bits']}); "
+                f"observed sums need {L['observed_acc_bits']}"
+            )
+        for note in d["notes"]:
+            lines.append(f"  note: {note}")
+        return "\n".join(lines)
+
+    def npz_arrays(self) -> dict[str, np.ndarray]:
+        """The arrays of the ``.npz`` result file, per ``semantics.md``."""
+        out: dict[str, np.ndarray] = {
+            "out_codes": self._outs[-1].codes.astype(np.int64),
+            "decisions": self._decisions.astype(np.int64),
+            "float_out": np.asarray(self.float_out, dtype=np.float64).reshape(self.n, -1),
+        }
+        for l, o in enumerate(self._outs, start=1):
+            out[f"acc_{l}"] = o.acc.astype(np.int64)
+            out[f"codes_{l}"] = o.codes.astype(np.int64)
+            for name in ("acc_overflow", "table_low", "table_high", "weight_clip"):
+                out[f"{name}_{l}"] = np.asarray(o.events[name], dtype=np.int64)
+        return out
+
+    def __repr__(self) -> str:
+        return f"<Emulation {self.n} samples, {self.mismatch} differ from float, events {self.event_totals()}>"
+
+
+def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
+    """Run the bit-exact integer network on unsigned input codes.
+
+    Parameters
+    ----------
+    network, plan
+        The float network and the fixed-point plan (checked against each other).
+    codes
+        N x n_in unsigned integer codes, or an H x W x n_in image (e.g. uint8 RGB).
+
+    Returns
+    -------
+    Emulation
+        Image input gives image-shaped arrays.
+    """
+    intnet = quantise(network, plan)
+    prep = _prepare(codes, network.input_bits, network.n_in)
+    outs: list[_LayerOut] = []
+    prev: _LayerOut | None = None
+    for li, layer in enumerate(intnet.layers):
+        key = (network.digest, prep.key, plan.layers[: li + 1])
+
+        def make(layer: IntegerLayer = layer, prev: _LayerOut | None = prev) -> _LayerOut:
+            if prev is None:
+                s = _first_sum(layer, prep, network.input_bits) if prep.n else np.zeros((0, layer.n_out), np.int64)
+            else:
+                s = _next_sum(layer, prev.codes)
+            return _run_layer(layer, s)
+
+        prev = _LAYER_CACHE.get(key, make)
+        outs.append(prev)
+    return Emulation(intnet, prep, outs)
