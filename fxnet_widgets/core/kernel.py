@@ -213,6 +213,15 @@ class IntegerNetwork:
     def safe_acc_bits(self) -> list[np.ndarray]:
         return [L.safe_acc_bits for L in self.layers]
 
+    def operation_counts(self) -> dict[str, int]:
+        """Per sample: multiplications (n_in per neuron), additions (n_in per neuron,
+        the bias included) and tables (one per sigmoid/tanh neuron)."""
+        return {
+            "multiplications": sum(L.n_in * L.n_out for L in self.layers),
+            "additions": sum(L.n_in * L.n_out for L in self.layers),
+            "tables": sum(L.n_out for L in self.layers if L.table is not None),
+        }
+
 
 def table_inputs(n_entries: int, index_min: int, table_frac: int, k: int, index_round: str, sample: str) -> np.ndarray:
     """The real input ``t`` of every table entry, in address order (float64).
@@ -445,6 +454,9 @@ def _input_key(arr: np.ndarray, bits: int, n_in: int) -> str:
     return h.hexdigest()
 
 
+_PAIR_MIN_SAMPLES = 4096
+
+
 def _prepare(codes: Any, bits: int, n_in: int) -> _Prepared:
     arr = np.asarray(codes)
     if arr.dtype == np.bool_ or arr.dtype.kind not in "iu":
@@ -457,98 +469,169 @@ def _prepare(codes: Any, bits: int, n_in: int) -> _Prepared:
         cols = tuple(np.ascontiguousarray(flat[:, i]).astype(cdt, copy=False) for i in range(n_in))
         pairs = []
         singles = list(range(n_in))
-        if bits <= 8 and n_in >= 2 and flat.shape[0] >= 4096:
+        if bits <= 8 and n_in >= 2 and flat.shape[0] >= _PAIR_MIN_SAMPLES:
             singles = []
             for i in range(0, n_in - 1, 2):
-                idx = (cols[i].astype(np.uint16) << np.uint16(bits)) | cols[i + 1]
+                idx = cols[i].astype(np.uint16)
+                idx <<= np.uint16(bits)
+                idx |= cols[i + 1]
                 pairs.append((i, i + 1, idx))
             if n_in % 2:
                 singles.append(n_in - 1)
+        flat.setflags(write=False) if flat.base is None else None
         return _Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]))
 
     return _INPUT_CACHE.get(key, make)
 
 
-def _sum_dtype(layer: IntegerLayer) -> type:
-    return _smallest_int(min(min(layer.sum_min), -1), max(max(layer.sum_max), 1))
+# The exact sums are offset by the lower end of their interval (folded into the
+# first product table), so they are non-negative and index the per-neuron
+# look-up table of steps 4-7 directly.
+_LUT_MAX = 1 << 21
 
 
-def _first_sum(layer: IntegerLayer, prep: _Prepared, bits: int) -> np.ndarray:
-    """Exact sums of layer 1 from product tables (N x n_out)."""
-    dt = np.int32 if _sum_dtype(layer) in (np.int8, np.int16, np.int32) else np.int64
+def _offset_dtype(span: int) -> type:
+    return np.int32 if span < (1 << 31) else np.int64
+
+
+def _layer_sums(layer: IntegerLayer, prep: _Prepared | None, prev_codes: np.ndarray | None, bits: int) -> list[np.ndarray]:
+    """Per neuron, the exact sum minus ``sum_min`` (1-D arrays, non-negative)."""
+    sums = []
     q_w = layer.q_w
-    n_codes = 1 << bits
-    u = np.arange(n_codes, dtype=np.int64)
-    s = None
-    bias_done = False
-    for i, j, idx in prep.pairs:
-        tab = (u[:, None, None] * q_w[:, i][None, None, :] + u[None, :, None] * q_w[:, j][None, None, :])
-        tab = tab.reshape(n_codes * n_codes, -1)
-        if not bias_done:
-            tab = tab + layer.q_b[None, :]
-            bias_done = True
-        part = tab.astype(dt).take(idx, axis=0)
-        s = part if s is None else s + part
-    for i in prep.singles:
-        tab = u[:, None] * q_w[:, i][None, :]
-        if not bias_done:
-            tab = tab + layer.q_b[None, :]
-            bias_done = True
-        part = tab.astype(dt).take(prep.columns[i], axis=0)
-        s = part if s is None else s + part
-    assert s is not None
-    return s
+    if prev_codes is None:
+        assert prep is not None
+        inputs = prep.columns
+        u = np.arange(1 << bits, dtype=np.int64)
+        n = prep.n
+    else:
+        inputs = tuple(prev_codes)
+        u = np.arange(layer.in_min, layer.in_max + 1, dtype=np.int64)
+        n = prev_codes.shape[1]
+    span_in = len(u)
+    use_tables = span_in * layer.n_in <= (1 << 22) and (n >= 2 * span_in or n >= 65536)
+    if not use_tables:
+        mat = np.stack(inputs, axis=1).astype(np.int64) if inputs else np.zeros((n, layer.n_in), np.int64)
+        s = mat @ q_w.T + layer.q_b[None, :]
+        for j in range(layer.n_out):
+            lo, hi = layer.sum_min[j], layer.sum_max[j]
+            sums.append((s[:, j] - np.int64(lo)).astype(_offset_dtype(hi - lo), copy=False))
+        return sums
+    off = 0 if prev_codes is None else layer.in_min
+    pairs = prep.pairs if prev_codes is None and prep is not None else ()
+    singles = prep.singles if prev_codes is None and prep is not None else tuple(range(layer.n_in))
+    for j in range(layer.n_out):
+        lo, hi = layer.sum_min[j], layer.sum_max[j]
+        dt = _offset_dtype(hi - lo)
+        base = int(layer.q_b[j]) - lo
+        acc = None
+        for i, k, idx in pairs:
+            tab = (u[:, None] * q_w[j, i] + u[None, :] * q_w[j, k]).reshape(-1)
+            if acc is None:
+                tab = tab + base
+            part = tab.astype(dt).take(idx)
+            acc = part if acc is None else np.add(acc, part, out=acc)
+        for i in singles:
+            tab = u * q_w[j, i]
+            if acc is None:
+                tab = tab + base
+            col = inputs[i]
+            if off:
+                col = col.astype(np.int64) - off
+            part = tab.astype(dt).take(col)
+            acc = part if acc is None else np.add(acc, part, out=acc)
+        assert acc is not None
+        sums.append(acc)
+    return sums
 
 
-def _next_sum(layer: IntegerLayer, codes: np.ndarray) -> np.ndarray:
-    """Exact sums of a later layer from the previous codes (N x n_out)."""
-    dt = np.int32 if _sum_dtype(layer) in (np.int8, np.int16, np.int32) else np.int64
-    span = layer.in_max - layer.in_min + 1
-    n = codes.shape[0]
-    if span * layer.n_in > (1 << 22) or (n < 4 * span and n < 65536):
-        s = codes.astype(np.int64) @ layer.q_w.T + layer.q_b[None, :]
-        return s.astype(dt, copy=False)
-    u = np.arange(layer.in_min, layer.in_max + 1, dtype=np.int64)
-    s = None
-    for i in range(layer.n_in):
-        tab = u[:, None] * layer.q_w[:, i][None, :]
-        if i == 0:
-            tab = tab + layer.q_b[None, :]
-        col = codes[:, i]
-        idx = col - np.asarray(layer.in_min, dtype=col.dtype) if layer.in_min != 0 else col
-        part = tab.astype(dt).take(idx, axis=0)
-        s = part if s is None else s + part
-    assert s is not None
-    return s
-
-
-@dataclass(frozen=True, eq=False)
 class _LayerOut:
-    acc: np.ndarray
-    codes: np.ndarray
-    events: dict[str, np.ndarray]
-    observed_min: np.ndarray
-    observed_max: np.ndarray
+    """One layer's outputs, neurons along the first axis (lazy where it pays)."""
+
+    def __init__(self, layer: IntegerLayer, shifted: list[np.ndarray], acc_direct: list[np.ndarray | None],
+                 codes: np.ndarray, events: dict[str, np.ndarray]) -> None:
+        self.layer = layer
+        self._shifted = shifted  # exact sum minus sum_min, per neuron
+        self._acc_direct = acc_direct  # s_A where it differs from the exact sum, else None
+        self.codes = codes  # (n_out, N)
+        self.events = events
+        self._acc: np.ndarray | None = None
+        self._range: tuple[np.ndarray, np.ndarray] | None = None
+
+    @property
+    def acc(self) -> np.ndarray:
+        """s_A, (n_out, N)."""
+        if self._acc is None:
+            L = self.layer
+            alo, ahi = signed_range(L.plan.acc_bits)
+            dt = _smallest_int(min(alo, min(L.sum_min)), max(ahi, max(L.sum_max)))
+            dt = np.int64 if dt == np.int64 else np.int32 if np.dtype(dt).itemsize >= 4 else dt
+            n = self.codes.shape[1]
+            out = np.empty((L.n_out, n), dtype=_smallest_int(min(min(L.sum_min), alo), max(max(L.sum_max), ahi)))
+            for j in range(L.n_out):
+                direct = self._acc_direct[j]
+                if direct is not None:
+                    out[j] = direct
+                else:
+                    np.add(self._shifted[j], L.sum_min[j], out=out[j], casting="unsafe")
+            out.setflags(write=False)
+            self._acc = out
+        return self._acc
+
+    @property
+    def observed(self) -> tuple[np.ndarray, np.ndarray]:
+        """Per neuron, the min and max exact sum on the data."""
+        if self._range is None:
+            L = self.layer
+            if self.codes.shape[1] == 0:
+                z = np.zeros(L.n_out, dtype=np.int64)
+                self._range = (z, z)
+            else:
+                mn = np.array([int(a.min()) + L.sum_min[j] for j, a in enumerate(self._shifted)], dtype=np.int64)
+                mx = np.array([int(a.max()) + L.sum_min[j] for j, a in enumerate(self._shifted)], dtype=np.int64)
+                self._range = (mn, mx)
+        return self._range
 
 
-def _run_layer(layer: IntegerLayer, s: np.ndarray) -> _LayerOut:
-    lo = min(layer.sum_min)
-    hi = max(layer.sum_max)
-    out = post_accumulate(layer, s, lo, hi)
-    n_out = layer.n_out
-    events = {}
-    for name in ("acc_overflow", "table_low", "table_high"):
-        flags = out[name]
-        events[name] = (
-            np.zeros(n_out, dtype=np.int64) if flags is None else np.count_nonzero(flags, axis=0).astype(np.int64)
-        )
+def _run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> _LayerOut:
+    n = shifted[0].shape[0] if shifted else 0
+    code_dt = _smallest_int(layer.code_min, layer.code_max)
+    if layer.code_min >= 0 and layer.code_max <= 255:
+        code_dt = np.uint8
+    codes = np.empty((layer.n_out, n), dtype=code_dt)
+    counts = {name: np.zeros(layer.n_out, dtype=np.int64) for name in ("acc_overflow", "table_low", "table_high")}
+    acc_direct: list[np.ndarray | None] = []
+    for j, sp in enumerate(shifted):
+        lo, hi = layer.sum_min[j], layer.sum_max[j]
+        span = hi - lo + 1
+        if span <= _LUT_MAX and span <= 2 * n + 1024:
+            dom = np.arange(lo, hi + 1, dtype=np.int64)
+            out = post_accumulate(layer, dom, lo, hi)
+            np.take(out["codes"].astype(code_dt, copy=False), sp, out=codes[j])
+            acc_lut = out["acc"]
+            changed = out["acc_overflow"] is not None
+            acc_direct.append(np.asarray(acc_lut).take(sp) if changed else None)
+            flags = [out[k] for k in ("acc_overflow", "table_low", "table_high")]
+            if any(f is not None and f.any() for f in flags):
+                ev = np.zeros(span, dtype=np.uint8)
+                for bit, f in enumerate(flags):
+                    if f is not None:
+                        ev |= f.astype(np.uint8) << np.uint8(bit)
+                hist = np.bincount(ev.take(sp), minlength=8)
+                for bit, name in enumerate(("acc_overflow", "table_low", "table_high")):
+                    counts[name][j] = int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
+        else:
+            s = sp.astype(np.int64) + np.int64(lo)
+            out = post_accumulate(layer, s, lo, hi)
+            codes[j] = out["codes"]
+            acc_direct.append(out["acc"] if out["acc_overflow"] is not None else None)
+            for name in ("acc_overflow", "table_low", "table_high"):
+                if out[name] is not None:
+                    counts[name][j] = int(np.count_nonzero(out[name]))
+    events = dict(counts)
     events["weight_clip"] = layer.weight_clip
     events["bias_clip"] = layer.bias_clip
-    if s.shape[0]:
-        omin, omax = s.min(axis=0).astype(np.int64), s.max(axis=0).astype(np.int64)
-    else:
-        omin = omax = np.zeros(n_out, dtype=np.int64)
-    return _LayerOut(out["acc"], out["codes"], events, omin, omax)
+    codes.setflags(write=False)
+    return _LayerOut(layer, shifted, acc_direct, codes, events)
 
 
 # ---------------------------------------------------------------------------------
@@ -578,20 +661,38 @@ class Emulation:
         self.n = prep.n
         self.events = [o.events for o in outs]
         self.safe_acc_bits = [L.safe_acc_bits for L in intnet.layers]
-        self.observed_min = [o.observed_min for o in outs]
-        self.observed_max = [o.observed_max for o in outs]
         last = outs[-1].codes
-        if last.shape[1] == 1:
+        if last.shape[0] == 1:
             assert intnet.threshold_code is not None
-            dec = (last[:, 0].astype(np.int64) >= intnet.threshold_code).astype(np.int64)
+            dec = (last[0] >= intnet.threshold_code).astype(np.int64)
         else:
-            dec = np.argmax(last, axis=1).astype(np.int64)
+            dec = np.argmax(last, axis=0).astype(np.int64)
+        dec.setflags(write=False)
         self._decisions = dec
 
     def _shaped(self, a: np.ndarray, per_sample: bool = False) -> np.ndarray:
+        # per-layer arrays are held neurons-first (n_out, N); present N x n_out views
+        if not per_sample:
+            a = a.T
         if self.shape is None:
             return a
         return a.reshape(self.shape) if per_sample else a.reshape(*self.shape, a.shape[-1])
+
+    @property
+    def observed_min(self) -> list[np.ndarray]:
+        return [o.observed[0] for o in self._outs]
+
+    @property
+    def observed_max(self) -> list[np.ndarray]:
+        return [o.observed[1] for o in self._outs]
+
+    def neuron_acc(self, layer: int, neuron: int) -> np.ndarray:
+        """s_A of one neuron as a flat contiguous (N,) array (fast for plots)."""
+        return self._outs[layer].acc[neuron]
+
+    def neuron_codes(self, layer: int, neuron: int) -> np.ndarray:
+        """Output codes of one neuron as a flat contiguous (N,) array."""
+        return self._outs[layer].codes[neuron]
 
     @property
     def inputs(self) -> np.ndarray:
@@ -626,7 +727,7 @@ class Emulation:
     def float_out(self) -> np.ndarray:
         key = (self.network.digest, self._prep.key)
         out = _FLOAT_CACHE.get(key, lambda: self.network.predict(self._prep.flat))
-        return self._shaped(out)
+        return out if self.shape is None else out.reshape(*self.shape, out.shape[-1])
 
     @property
     def float_decisions(self) -> np.ndarray:
@@ -693,13 +794,13 @@ class Emulation:
     def npz_arrays(self) -> dict[str, np.ndarray]:
         """The arrays of the ``.npz`` result file, per ``semantics.md``."""
         out: dict[str, np.ndarray] = {
-            "out_codes": self._outs[-1].codes.astype(np.int64),
+            "out_codes": self._outs[-1].codes.T.astype(np.int64),
             "decisions": self._decisions.astype(np.int64),
             "float_out": np.asarray(self.float_out, dtype=np.float64).reshape(self.n, -1),
         }
         for l, o in enumerate(self._outs, start=1):
-            out[f"acc_{l}"] = o.acc.astype(np.int64)
-            out[f"codes_{l}"] = o.codes.astype(np.int64)
+            out[f"acc_{l}"] = o.acc.T.astype(np.int64)
+            out[f"codes_{l}"] = o.codes.T.astype(np.int64)
             for name in ("acc_overflow", "table_low", "table_high", "weight_clip"):
                 out[f"{name}_{l}"] = np.asarray(o.events[name], dtype=np.int64)
         return out
@@ -731,11 +832,9 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
         key = (network.digest, prep.key, plan.layers[: li + 1])
 
         def make(layer: IntegerLayer = layer, prev: _LayerOut | None = prev) -> _LayerOut:
-            if prev is None:
-                s = _first_sum(layer, prep, network.input_bits) if prep.n else np.zeros((0, layer.n_out), np.int64)
-            else:
-                s = _next_sum(layer, prev.codes)
-            return _run_layer(layer, s)
+            sums = _layer_sums(layer, prep if prev is None else None, None if prev is None else prev.codes,
+                               network.input_bits)
+            return _run_layer(layer, sums)
 
         prev = _LAYER_CACHE.get(key, make)
         outs.append(prev)
