@@ -18,7 +18,6 @@ Examples
 from __future__ import annotations
 
 import hashlib
-import json
 import os
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
@@ -26,7 +25,7 @@ from typing import Any
 
 import numpy as np
 
-from .fileio import FileFormatError, atomic_write_json, dumps_json, load_json
+from .fileio import atomic_write_json, dumps_json, load_json
 
 __all__ = ["ACTIVATIONS", "Layer", "Network", "as_codes", "activate"]
 
@@ -82,7 +81,7 @@ def _matrix(value: Any, where: str) -> np.ndarray:
     bad = np.argwhere(~np.isfinite(arr))
     if bad.size:
         i, j = (int(v) for v in bad[0])
-        raise ValueError(f"{where}[{i}][{j}] must be finite, not {arr[i, j]!r}")
+        raise ValueError(f"{where}[{i}][{j}] must be finite, not {float(arr[i, j])!r}")
     return arr
 
 
@@ -102,7 +101,7 @@ def _vector(value: Any, where: str, n: int) -> np.ndarray:
         raise ValueError(f"{where} must have {n} entries (one per neuron), not {arr.size}")
     bad = np.flatnonzero(~np.isfinite(arr))
     if bad.size:
-        raise ValueError(f"{where}[{int(bad[0])}] must be finite, not {arr[bad[0]]!r}")
+        raise ValueError(f"{where}[{int(bad[0])}] must be finite, not {float(arr[bad[0]])!r}")
     return arr
 
 
@@ -399,12 +398,3 @@ def as_codes(codes: Any, bits: int, n_in: int, *, what: str = "codes") -> tuple[
                 bad = lo_v if lo_v < 0 else hi_v
                 raise ValueError(f"{what} must be between 0 and {hi} ({bits}-bit unsigned), not {bad}")
     return flat, shape
-
-
-def network_json(net: Network) -> str:
-    """The network file's text (canonical)."""
-    return json.dumps(net.to_dict(), indent=2)
-
-
-def _assert_file_error(exc: Exception) -> FileFormatError:  # pragma: no cover - helper for typing
-    return FileFormatError(str(exc))

@@ -1,0 +1,186 @@
+"""Kernel speed on one 1280x720 frame with a 3-3-1 sigmoid network, measured side by side.
+
+Prints, in one run, the median of several repetitions of:
+  * our emulation, first call on a new image (caches cleared) and new plan on the same image;
+  * a numpy float32 and a float64 forward pass of the same network;
+  * a straightforward int64 numpy emulation of the same arithmetic;
+  * fxpmath and apytypes emulations of the same arithmetic (on a subsample, scaled to the
+    frame), each checked bit for bit against ours on that subsample.
+Targets (issue 2): first call <= 1.5x float32; new plan <= 1.0x float32; >= 100x faster than
+fxpmath; >= 5x faster than apytypes.
+
+Run: python benchmarks/bench_kernel.py [--repeat 7]
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import time
+from pathlib import Path
+
+import numpy as np
+
+import fxnet_widgets as fw
+from fxnet_widgets.core import kernel
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def frame() -> np.ndarray:
+    scene = ROOT / "assets" / "scene-test.png"
+    if scene.exists():
+        from PIL import Image
+
+        return np.asarray(Image.open(scene).convert("RGB").resize((1280, 720), Image.Resampling.BILINEAR))
+    return np.random.default_rng(0).integers(0, 256, (720, 1280, 3), dtype=np.uint8)
+
+
+def network() -> fw.Network:
+    path = ROOT / "assets" / "network.json"
+    if path.exists():
+        net = fw.Network.load(path)
+        if net.shape == (3, 3, 1):
+            return net
+    rng = np.random.default_rng(1)
+    return fw.Network.from_layers(
+        [(rng.normal(0, 4, (3, 3)), rng.normal(0, 1, 3), "sigmoid"), (rng.normal(0, 4, (1, 3)), [0.2], "sigmoid")]
+    )
+
+
+PLAN = dict(weight_bits=8, weight_frac=5, acc_bits=18, table_bits=14, table_frac=9, out_bits=8)
+
+
+def float_pass(net: fw.Network, img: np.ndarray, dt: type) -> np.ndarray:
+    x = img.reshape(-1, 3).astype(dt) * dt(1 / 256)
+    for L in net.layers:
+        z = x @ L.weights.T.astype(dt) + L.bias.astype(dt)
+        x = dt(1) / (dt(1) + np.exp(-z))
+    return x
+
+
+def straightforward(q: kernel.IntegerNetwork, img: np.ndarray) -> np.ndarray:
+    u = img.reshape(-1, 3).astype(np.int64)
+    for L in q.layers:
+        s = u @ L.q_w.T + L.q_b
+        A = L.plan.acc_bits
+        s = ((s + (1 << (A - 1))) & ((1 << A) - 1)) - (1 << (A - 1))
+        a = np.clip(s >> L.shift, L.index_min, L.index_max)
+        u = L.table[a - L.index_min]
+    return u
+
+
+def with_fxpmath(q: kernel.IntegerNetwork, codes: np.ndarray) -> np.ndarray:
+    from fxpmath import Fxp
+
+    u = Fxp(codes / 256.0, signed=True, n_word=10, n_frac=8)
+    for L in q.layers:
+        p = L.plan
+        fw_ = p.weight_frac
+        out = []
+        for j in range(L.n_out):
+            acc = Fxp(np.full(codes.shape[0], L.q_b[j] / 2.0 ** L.acc_frac), signed=True, n_word=40, n_frac=L.acc_frac)
+            for i in range(L.n_in):
+                w = Fxp(L.q_w[j, i] / 2.0**fw_, signed=True, n_word=p.weight_bits, n_frac=fw_)
+                col = Fxp(u[:, i] if u.ndim == 2 else u, signed=True, n_word=20, n_frac=L.in_frac)
+                acc = Fxp(acc + col * w, signed=True, n_word=40, n_frac=L.acc_frac)
+            acc = Fxp(acc, signed=True, n_word=p.acc_bits, n_frac=L.acc_frac, overflow="wrap")
+            idx = Fxp(acc, signed=True, n_word=p.table_bits, n_frac=p.table_frac, rounding="floor", overflow="saturate")
+            out.append(L.table[np.asarray(idx.val, dtype=np.int64) - L.index_min])
+        codes_l = np.stack(out, axis=1)
+        u = codes_l / 2.0**L.out_frac
+    return codes_l
+
+
+def with_apytypes(q: kernel.IntegerNetwork, codes: np.ndarray) -> np.ndarray:
+    import apytypes as apy
+
+    x = apy.APyFixedArray.from_float(codes / 256.0, int_bits=2, frac_bits=8)
+    for L in q.layers:
+        p = L.plan
+        w = apy.APyFixedArray.from_float(L.q_w.T / 2.0**p.weight_frac, int_bits=p.weight_bits - p.weight_frac,
+                                         frac_bits=p.weight_frac)  # fmt: skip
+        y = x @ w
+        b = apy.APyFixedArray.from_float(np.broadcast_to(L.q_b / 2.0**L.acc_frac, (codes.shape[0], L.n_out)),
+                                         int_bits=y.int_bits, frac_bits=y.frac_bits)  # fmt: skip
+        z = (y + b).cast(int_bits=p.acc_bits - L.acc_frac, frac_bits=L.acc_frac, overflow=apy.OverflowMode.WRAP,
+                         quantization=apy.QuantizationMode.TO_NEG)  # fmt: skip
+        a = z.cast(int_bits=p.table_bits - p.table_frac, frac_bits=p.table_frac,
+                   quantization=apy.QuantizationMode.TO_NEG, overflow=apy.OverflowMode.SAT)  # fmt: skip
+        idx = np.rint(np.asarray(a.to_numpy()) * 2.0**p.table_frac).astype(np.int64)
+        out = L.table[idx - L.index_min]
+        x = apy.APyFixedArray.from_float(out / 2.0**L.out_frac, int_bits=2, frac_bits=L.out_frac)
+    return out
+
+
+def median_time(fn, repeat: int, setup=None) -> float:
+    times = []
+    for _ in range(repeat):
+        if setup:
+            setup()
+        t0 = time.perf_counter()
+        fn()
+        times.append(time.perf_counter() - t0)
+    return statistics.median(times)
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--repeat", type=int, default=7)
+    ap.add_argument("--subsample", type=int, default=20000)
+    args = ap.parse_args()
+    img = np.ascontiguousarray(frame())
+    net = network()
+    plan = fw.Plan.uniform(net, **PLAN)
+    plan2 = plan.replace(table_bits=13, table_frac=8)
+    q = kernel.quantise(net, plan)
+    n = img.shape[0] * img.shape[1]
+
+    # checks before timing: every implementation computes the same codes
+    ours = fw.emulate(net, plan, img).out_codes.reshape(-1)
+    assert np.array_equal(straightforward(q, img)[:, 0], ours)
+    sub = img.reshape(-1, 3)[: args.subsample].astype(np.int64)
+    assert np.array_equal(with_fxpmath(q, sub)[:, 0], ours[: args.subsample]), "fxpmath disagrees"
+    assert np.array_equal(with_apytypes(q, sub)[:, 0], ours[: args.subsample]), "apytypes disagrees"
+
+    rows = {}
+    rows["float32 forward pass"] = median_time(lambda: float_pass(net, img, np.float32), args.repeat)
+    rows["float64 forward pass"] = median_time(lambda: float_pass(net, img, np.float64), args.repeat)
+    fresh = [0]
+
+    def new_image():
+        kernel.clear_caches()
+        kernel.quantise(net, plan)  # the plan's integer network is not per-image work
+
+    rows["ours, first call on a new image"] = median_time(lambda: fw.emulate(net, plan, img), args.repeat, new_image)
+    plans = [plan, plan2]
+
+    def alternate():
+        fresh[0] ^= 1
+        kernel._LAYER_CACHE.clear()
+        kernel.quantise(net, plans[fresh[0]])
+
+    fw.emulate(net, plan, img)
+    rows["ours, new plan on the same image"] = median_time(
+        lambda: fw.emulate(net, plans[fresh[0]], img), args.repeat, alternate
+    )
+    rows["straightforward int64 numpy"] = median_time(lambda: straightforward(q, img), args.repeat)
+    scale = n / args.subsample
+    rows["fxpmath (scaled from subsample)"] = median_time(lambda: with_fxpmath(q, sub), 3) * scale
+    rows["apytypes (scaled from subsample)"] = median_time(lambda: with_apytypes(q, sub), 3) * scale
+
+    f32 = rows["float32 forward pass"]
+    print(f"frame 1280x720 ({n} pixels), network {net.shape}, plan {PLAN}")
+    for name, t in rows.items():
+        print(f"  {name:36s} {t * 1e3:10.1f} ms   {t / f32:8.2f} x float32")
+    first = rows["ours, first call on a new image"]
+    again = rows["ours, new plan on the same image"]
+    print("targets:")
+    print(f"  first call / float32      = {first / f32:6.2f}  (target <= 1.5)")
+    print(f"  new plan / float32        = {again / f32:6.2f}  (target <= 1.0)")
+    print(f"  fxpmath / ours (first)    = {rows['fxpmath (scaled from subsample)'] / first:6.0f}  (target >= 100)")
+    print(f"  apytypes / ours (first)   = {rows['apytypes (scaled from subsample)'] / first:6.1f}  (target >= 5)")
+
+
+if __name__ == "__main__":
+    main()
