@@ -13,8 +13,10 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
+import zipfile
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -53,6 +55,7 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
     directory = path.parent if str(path.parent) else Path(".")
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
     try:
+        os.fchmod(fd, 0o666 & ~_umask())  # the permissions an ordinary open() would give
         with os.fdopen(fd, mode) as fh:
             write(fh)
             fh.flush()
@@ -65,6 +68,12 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
             pass
         raise
     return path
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
@@ -89,6 +98,13 @@ def atomic_write_json(path: str | os.PathLike[str], obj: Any) -> Path:
 
 def _reject_constant(name: str) -> Any:
     raise ValueError(f"{name} is not valid JSON (numbers must be finite)")
+
+
+def _finite_float(text: str) -> float:
+    value = float(text)
+    if not np.isfinite(value):
+        raise ValueError(f"{text} is out of the float64 range (numbers must be finite)")
+    return value
 
 
 def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
@@ -152,7 +168,9 @@ def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) 
     if _depth(text) > MAX_JSON_DEPTH:
         raise FileFormatError(f"{name}: JSON nesting deeper than {MAX_JSON_DEPTH} levels")
     try:
-        return json.loads(text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant)
+        return json.loads(
+            text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant, parse_float=_finite_float
+        )
     except json.JSONDecodeError as exc:
         raise FileFormatError(f"{name}: invalid JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
     except ValueError as exc:
@@ -161,16 +179,50 @@ def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) 
         raise FileFormatError(f"{name}: JSON nesting too deep") from None
 
 
+def _check_npy_size(name: str) -> None:
+    """Refuse a ``.npy`` whose header declares more data than the file holds.
+
+    Without this, numpy allocates the declared size first (a 20-byte header can
+    ask for terabytes). Archives and other files are left to ``np.load``.
+    """
+    fmt = np.lib.format
+    with open(name, "rb") as fh:
+        if fh.read(6) != b"\x93NUMPY":
+            return
+        fh.seek(0)
+        version = fmt.read_magic(fh)
+        if version == (1, 0):
+            shape, _, dtype = fmt.read_array_header_1_0(fh)
+        elif version == (2, 0):
+            shape, _, dtype = fmt.read_array_header_2_0(fh)
+        else:
+            return
+        offset = fh.tell()
+        size = os.fstat(fh.fileno()).st_size
+    if dtype.hasobject:
+        return  # np.load refuses it without pickle
+    need = math.prod(shape) * dtype.itemsize
+    if need > size - offset:
+        raise ValueError(
+            f"the header declares shape {shape} of {dtype} ({need} bytes), but the file holds {size - offset}"
+        )
+
+
 def load_npy(path: str | os.PathLike[str]) -> np.ndarray:
     """Read a ``.npy`` array without pickle; errors name the file."""
     name = os.fspath(path)
     try:
+        _check_npy_size(name)
         arr = np.load(name, allow_pickle=False)
     except FileNotFoundError:
         raise FileFormatError(f"{name}: no such file") from None
     except IsADirectoryError:
         raise FileFormatError(f"{name}: is a directory, not a file") from None
-    except (ValueError, OSError, EOFError) as exc:
+    except MemoryError:
+        raise FileFormatError(
+            f"{name}: not a readable .npy array (its header declares more data than fits in memory)"
+        ) from None
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise FileFormatError(f"{name}: not a readable .npy array ({msg})") from None
     if not isinstance(arr, np.ndarray):

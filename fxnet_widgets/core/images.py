@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import io
 import os
+import struct
 import warnings
 from dataclasses import dataclass
 from typing import IO, Any
@@ -33,7 +34,10 @@ _CONVERSIONS = {
     "1": "mode 1 converted to RGB (black 0, white 255)",
     "P": "mode P converted to RGB (palette looked up)",
     "PA": "mode PA converted to RGB (palette looked up; alpha dropped)",
-    "CMYK": "mode CMYK converted to RGB (pillow's naive CMYK to RGB)",
+    "CMYK": (
+        "mode CMYK converted to RGB (no colour profile: "
+        "R = (255 - C) * (255 - K) / 255 rounded, G and B alike)"
+    ),
     "YCbCr": "mode YCbCr converted to RGB",
     "I;16": "mode I;16 converted to RGB (16-bit grey scaled to 8 bits: code >> 8)",
     "I;16B": "mode I;16B converted to RGB (16-bit grey scaled to 8 bits: code >> 8)",
@@ -83,7 +87,11 @@ def read_image(source: str | os.PathLike[str] | IO[bytes]) -> RGBImage:
     FileFormatError
         ``"<file>: <problem>"`` for a missing, unreadable, truncated or oversized image.
     """
-    name = os.fspath(source) if isinstance(source, (str, os.PathLike)) else getattr(source, "name", "<image>")
+    name = (
+        os.fspath(source)
+        if isinstance(source, (str, os.PathLike))
+        else getattr(source, "name", "<image>")
+    )
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error", Image.DecompressionBombWarning)
@@ -91,7 +99,8 @@ def read_image(source: str | os.PathLike[str] | IO[bytes]) -> RGBImage:
                 w, h = im.size
                 if w * h > MAX_IMAGE_PIXELS:
                     raise FileFormatError(
-                        f"{name}: image is {w}x{h} = {w * h} pixels, more than the limit of {MAX_IMAGE_PIXELS}"
+                        f"{name}: image is {w}x{h} = {w * h} pixels, "
+                        f"more than the limit of {MAX_IMAGE_PIXELS}"
                     )
                 im.load()
                 notes = []
@@ -114,19 +123,13 @@ def read_image(source: str | os.PathLike[str] | IO[bytes]) -> RGBImage:
         raise FileFormatError(f"{name}: image too large ({exc})") from None
     except UnidentifiedImageError:
         raise FileFormatError(f"{name}: not an image file pillow can read") from None
-    except (OSError, ValueError, SyntaxError, EOFError, struct_error()) as exc:
+    except (OSError, ValueError, SyntaxError, EOFError, struct.error) as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise FileFormatError(f"{name}: broken or truncated image ({msg})") from None
     if codes.ndim != 3 or codes.shape[2] != 3 or codes.shape[0] == 0 or codes.shape[1] == 0:
         raise FileFormatError(f"{name}: image has no pixels")
     codes.setflags(write=False)
     return RGBImage(codes, "; ".join(notes), str(name))
-
-
-def struct_error() -> type:
-    import struct
-
-    return struct.error
 
 
 def image_to_png_bytes(codes: Any) -> bytes:
