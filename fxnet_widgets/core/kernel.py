@@ -268,6 +268,22 @@ def _interval(q_w: np.ndarray, u_min: int, u_max: int, bias: list[int]) -> tuple
     return lo_list, hi_list
 
 
+def _scaled(x: np.ndarray, e: int) -> np.ndarray:
+    """``x * 2**e`` in float64 for rounding to an integer.
+
+    A product too small for float64 would underflow to zero and lose its sign
+    (``floor`` of a tiny negative value is -1, not 0); it is kept as the smallest
+    subnormal of its sign instead, which every rounding mode treats exactly like
+    the true value (any magnitude below 1/2 rounds by its sign alone).
+    """
+    with np.errstate(over="ignore", under="ignore"):
+        y = np.ldexp(x, e)
+    tiny = (y == 0) & (x != 0)
+    if tiny.any():
+        y = np.where(tiny, np.copysign(np.float64(5e-324), x), y)
+    return y
+
+
 def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
     plan.check(network)
     notes = []
@@ -285,15 +301,16 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
                 " before quantising"
             )
         # 1. weights
-        qw_f = round_float(np.ldexp(w, lp.weight_frac), lp.weight_round)
+        qw_f = round_float(_scaled(w, lp.weight_frac), lp.weight_round)  # an overflow to inf is clamped
         wlo, whi = signed_range(lp.weight_bits)
         clipped = (qw_f < wlo) | (qw_f > whi)
         q_w = np.clip(qw_f, wlo, whi).astype(np.int64)
         weight_clip = clipped.sum(axis=1).astype(np.int64)
         # 2. bias (aligned to the product's scale)
         acc_frac = in_frac + lp.weight_frac
-        qb_f = round_float(np.ldexp(np.asarray(L.bias, dtype=np.float64), acc_frac), lp.weight_round)
-        q_b_raw = [int(v) for v in qb_f.tolist()]
+        qb_f = round_float(_scaled(np.asarray(L.bias, dtype=np.float64), acc_frac), lp.weight_round)
+        # beyond float64 the product is an exact integer (b is then an integer and acc_frac > 0)
+        q_b_raw = [int(v) if math.isfinite(v) else int(b) << acc_frac for v, b in zip(qb_f.tolist(), L.bias.tolist())]
         alo, ahi = signed_range(lp.acc_bits)
         q_b_list = [min(max(v, alo), ahi) for v in q_b_raw]
         bias_clip = np.array([int(v != c) for v, c in zip(q_b_raw, q_b_list)], dtype=np.int64)
@@ -317,7 +334,7 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
             ilo, ihi = signed_range(lp.table_bits)
             t = table_inputs(1 << lp.table_bits, ilo, lp.table_frac, k, lp.index_round, lp.table_sample)
             v = activate(t, L.activation)
-            entries = round_float(np.ldexp(v, out_frac), lp.table_round)
+            entries = round_float(_scaled(v, out_frac), lp.table_round)
             table = np.clip(entries, out_lo, out_hi).astype(np.int64)
             table.setflags(write=False)
             code_min, code_max = int(table.min()), int(table.max())
@@ -572,7 +589,7 @@ class _LayerOut:
                 if direct is not None:
                     out[j] = direct
                 else:
-                    np.add(self._shifted[j], L.sum_min[j], out=out[j], casting="unsafe")
+                    np.add(self._shifted[j], np.int64(L.sum_min[j]), out=out[j], casting="unsafe")
             out.setflags(write=False)
             self._acc = out
         return self._acc
@@ -796,7 +813,7 @@ class Emulation:
         out: dict[str, np.ndarray] = {
             "out_codes": self._outs[-1].codes.T.astype(np.int64),
             "decisions": self._decisions.astype(np.int64),
-            "float_out": np.asarray(self.float_out, dtype=np.float64).reshape(self.n, -1),
+            "float_out": np.asarray(self.float_out, dtype=np.float64).reshape(self.n, self.network.n_out),
         }
         for l, o in enumerate(self._outs, start=1):
             out[f"acc_{l}"] = o.acc.T.astype(np.int64)
