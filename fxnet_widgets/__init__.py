@@ -22,12 +22,61 @@ from .core import (
     q_notation,
     quantise,
 )
+from .core.demo import build_demo, suggest_plan, write_demo
+from .core.images import RGBImage, read_image
+from .core.analysis import (
+    VIDEO_FORMATS,
+    Attribution,
+    ErrorMetrics,
+    HardwareCost,
+    SerialExecutor,
+    SweepRecord,
+    TuneResult,
+    attribute_errors,
+    csd,
+    csd_adders,
+    error_metrics,
+    hardware_cost,
+    pareto_front,
+    sweep,
+    text_progress,
+    throughput,
+    tune,
+)
+from .core.imports import from_arrays, from_sklearn, load_npz, save_npz
+from .core.labels import (
+    LabelledPixels,
+    labels_from_class_map,
+    labels_from_csv,
+    labels_from_mask,
+    load_class_table,
+    load_labels,
+    sample_pixels,
+)
+from .core.scenes import Scene, make_scene
+from .core.export import export
+from .core.training import Training, TrainingReport, fit, train
 
 __version__ = "0.1.0"
 
 # public names that live in modules needing optional or heavy imports: name -> module
 _LAZY: dict[str, str] = {
     # -- lazy exports (one line each) --
+    "save_report": "fxnet_widgets.report",
+    "BoundaryPanel": "fxnet_widgets.widgets.boundary",
+    "CubePanel": "fxnet_widgets.widgets.boundary",
+    "SlicePlot": "fxnet_widgets.widgets.boundary",
+    "PlanControlsPanel": "fxnet_widgets.widgets.controls",
+    "EventsPlot": "fxnet_widgets.widgets.events",
+    "HistogramPlot": "fxnet_widgets.widgets.events",
+    "HistogramsPanel": "fxnet_widgets.widgets.events",
+    "Explorer": "fxnet_widgets.widgets.explorer",
+    "demo_explorer": "fxnet_widgets.widgets.explorer",
+    "MetricsPanel": "fxnet_widgets.widgets.metrics",
+    "PreviewPanel": "fxnet_widgets.widgets.preview",
+    "Session": "fxnet_widgets.widgets.session",
+    "StatusLinePanel": "fxnet_widgets.widgets.status",
+    "SweepProgressBar": "fxnet_widgets.widgets.status",
 }
 
 __all__ = [
@@ -40,8 +89,48 @@ __all__ = [
     "Network",
     "Plan",
     "emulate",
+    "export",
     "q_notation",
     "quantise",
+    "VIDEO_FORMATS",
+    "Attribution",
+    "ErrorMetrics",
+    "HardwareCost",
+    "SerialExecutor",
+    "SweepRecord",
+    "TuneResult",
+    "attribute_errors",
+    "csd",
+    "csd_adders",
+    "error_metrics",
+    "hardware_cost",
+    "pareto_front",
+    "sweep",
+    "text_progress",
+    "throughput",
+    "tune",
+    "LabelledPixels",
+    "RGBImage",
+    "Scene",
+    "Training",
+    "TrainingReport",
+    "build_demo",
+    "fit",
+    "from_arrays",
+    "from_sklearn",
+    "labels_from_class_map",
+    "labels_from_csv",
+    "labels_from_mask",
+    "load_class_table",
+    "load_labels",
+    "load_npz",
+    "make_scene",
+    "read_image",
+    "sample_pixels",
+    "save_npz",
+    "suggest_plan",
+    "train",
+    "write_demo",
     *sorted(_LAZY),
 ]
 

@@ -18,3 +18,6 @@ from pathlib import Path
 
 # test helpers shared by several test folders (e.g. the slow contract reference `fxref`)
 sys.path.insert(0, str(Path(__file__).parent / "_support"))
+
+# notebooks under tests/ are fixtures of the browser tests, not nbval regression notebooks
+collect_ignore_glob = ["browser/*.ipynb"]

@@ -20,6 +20,13 @@ __all__ = ["main", "SUBCOMMANDS"]
 #: subcommand modules, in the order ``fxnet --help`` lists them (one line each)
 SUBCOMMANDS = [
     "emulate",
+    "export",
+    "cost",
+    "sweep",
+    "tune",
+    "train",
+    "demo",
+    "report",
 ]
 
 

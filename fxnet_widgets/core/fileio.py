@@ -15,7 +15,9 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import tempfile
+import tokenize
 import zipfile
 from collections.abc import Callable
 from pathlib import Path
@@ -34,10 +36,12 @@ __all__ = [
     "load_json",
     "load_npy",
     "dumps_json",
+    "key_text",
 ]
 
 MAX_JSON_BYTES = 64 * 1024 * 1024
 MAX_JSON_DEPTH = 64
+_SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F]")
 
 
 class FileFormatError(ValueError):
@@ -94,6 +98,14 @@ def dumps_json(obj: Any) -> str:
 def atomic_write_json(path: str | os.PathLike[str], obj: Any) -> Path:
     """Write ``obj`` as UTF-8 JSON to ``path`` atomically."""
     return atomic_write_text(path, dumps_json(obj))
+
+
+def key_text(key: object) -> str:
+    """A JSON key as it reads in a one-line message: plain if it is a simple name, else its repr."""
+    if isinstance(key, str) and key.replace("-", "_").isidentifier():
+        return key
+    r = repr(key)
+    return r if len(r) <= 40 else r[:37] + "..."
 
 
 def _reject_constant(name: str) -> Any:
@@ -168,7 +180,7 @@ def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) 
     if _depth(text) > MAX_JSON_DEPTH:
         raise FileFormatError(f"{name}: JSON nesting deeper than {MAX_JSON_DEPTH} levels")
     try:
-        return json.loads(
+        obj = json.loads(
             text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant, parse_float=_finite_float
         )
     except json.JSONDecodeError as exc:
@@ -177,6 +189,14 @@ def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) 
         raise FileFormatError(f"{name}: {exc}") from None
     except RecursionError:
         raise FileFormatError(f"{name}: JSON nesting too deep") from None
+    if _SURROGATE_ESCAPE.search(text):  # rare: only then pay for the check
+        try:
+            json.dumps(obj, ensure_ascii=False).encode("utf-8")
+        except UnicodeEncodeError as exc:
+            raise FileFormatError(
+                f"{name}: a string holds the lone surrogate {exc.object[exc.start]!r}, which is not Unicode text"
+            ) from None
+    return obj
 
 
 def _check_npy_size(name: str) -> None:
@@ -222,7 +242,8 @@ def load_npy(path: str | os.PathLike[str]) -> np.ndarray:
         raise FileFormatError(
             f"{name}: not a readable .npy array (its header declares more data than fits in memory)"
         ) from None
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile, SyntaxError, tokenize.TokenError) as exc:
+        # SyntaxError and TokenError: a damaged header dictionary
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise FileFormatError(f"{name}: not a readable .npy array ({msg})") from None
     if not isinstance(arr, np.ndarray):

@@ -443,7 +443,7 @@ def post_accumulate(layer: IntegerLayer, s: np.ndarray, lo: int | None = None, h
             high = a > ihi
             a = np.clip(a, ilo, ihi)
     if layer.table is not None:
-        idx = np.asarray(a) - ilo if ilo != 0 else a
+        idx = np.asarray(a) - np.int64(ilo) if ilo != 0 else a  # int64: ilo may not fit a's dtype
         codes = layer.table[idx]
         codes = codes.astype(_smallest_int(layer.code_min, layer.code_max), copy=False)
     else:

@@ -25,7 +25,7 @@ from typing import Any
 
 import numpy as np
 
-from .fileio import atomic_write_json, dumps_json, load_json
+from .fileio import atomic_write_json, dumps_json, key_text, load_json
 
 __all__ = ["ACTIVATIONS", "Layer", "Network", "as_codes", "activate"]
 
@@ -72,6 +72,9 @@ def _matrix(value: Any, where: str) -> np.ndarray:
         lengths = {len(r) for r in value}
         if len(lengths) != 1:
             raise ValueError(f"{where} rows must all have the same length, not {sorted(lengths)}")
+        for i, row in enumerate(value):
+            for j, v in enumerate(row):
+                _check_float_range(v, f"{where}[{i}][{j}]")
         arr = np.array(value, dtype=np.float64)
     if arr.ndim != 2 or arr.shape[0] == 0 or arr.shape[1] == 0:
         raise ValueError(f"{where} must be a 2-D array with at least one row and column, not shape {arr.shape}")
@@ -96,6 +99,7 @@ def _vector(value: Any, where: str, n: int) -> np.ndarray:
         for j, v in enumerate(value):
             if not isinstance(v, (int, float, np.integer, np.floating)) or isinstance(v, bool):
                 raise TypeError(f"{where}[{j}] must be a number, not {_short(v)}")
+            _check_float_range(v, f"{where}[{j}]")
         arr = np.array(value, dtype=np.float64)
     if arr.shape != (n,):
         raise ValueError(f"{where} must have {n} entries (one per neuron), not {arr.size}")
@@ -103,6 +107,15 @@ def _vector(value: Any, where: str, n: int) -> np.ndarray:
     if bad.size:
         raise ValueError(f"{where}[{int(bad[0])}] must be finite, not {float(arr[bad[0]])!r}")
     return arr
+
+
+def _check_float_range(v: Any, where: str) -> None:
+    # a JSON integer beyond the float64 range would raise OverflowError in numpy
+    if isinstance(v, int) and abs(v) > _FLOAT_MAX:
+        raise ValueError(f"{where} must be finite, not {_short(v)}")
+
+
+_FLOAT_MAX = int(np.finfo(np.float64).max)
 
 
 def _short(v: Any) -> str:
@@ -193,9 +206,9 @@ class Network:
         """Validate a network document (the parsed JSON file)."""
         if not isinstance(doc, dict):
             raise TypeError(f"network must be a JSON object, not {_short(doc)}")
-        unknown = sorted(set(doc) - _NETWORK_KEYS)
+        unknown = sorted(set(doc) - _NETWORK_KEYS, key=str)
         if unknown:
-            raise ValueError(f"{unknown[0]} is not a network key (known: {', '.join(sorted(_NETWORK_KEYS))})")
+            raise ValueError(f"{key_text(unknown[0])} is not a network key (known: {', '.join(sorted(_NETWORK_KEYS))})")
         if doc.get("kind", "fxnet.network") != "fxnet.network":
             raise ValueError(f"kind must be 'fxnet.network', not {doc.get('kind')!r}")
         if doc.get("version", 1) != 1 or isinstance(doc.get("version", 1), bool):
@@ -203,9 +216,9 @@ class Network:
         inp = doc.get("input", {})
         if not isinstance(inp, dict):
             raise TypeError(f"input must be an object, not {_short(inp)}")
-        unknown = sorted(set(inp) - _INPUT_KEYS)
+        unknown = sorted(set(inp) - _INPUT_KEYS, key=str)
         if unknown:
-            raise ValueError(f"input.{unknown[0]} is not an input key (known: bits, names, scale)")
+            raise ValueError(f"input.{key_text(unknown[0])} is not an input key (known: bits, names, scale)")
         bits = inp.get("bits", 8)
         if not _is_int(bits):
             raise TypeError(f"input.bits must be an integer, not {_short(bits)}")
@@ -225,9 +238,9 @@ class Network:
             where = f"layers[{li}]"
             if not isinstance(ld, dict):
                 raise TypeError(f"{where} must be an object, not {_short(ld)}")
-            unknown = sorted(set(ld) - _LAYER_KEYS)
+            unknown = sorted(set(ld) - _LAYER_KEYS, key=str)
             if unknown:
-                raise ValueError(f"{where}.{unknown[0]} is not a layer key (known: activation, bias, weights)")
+                raise ValueError(f"{where}.{key_text(unknown[0])} is not a layer key (known: activation, bias, weights)")
             for key in ("weights", "bias", "activation"):
                 if key not in ld:
                     raise ValueError(f"{where}.{key} is missing")
@@ -255,9 +268,9 @@ class Network:
         out = doc.get("output", {})
         if not isinstance(out, dict):
             raise TypeError(f"output must be an object, not {_short(out)}")
-        unknown = sorted(set(out) - _OUTPUT_KEYS)
+        unknown = sorted(set(out) - _OUTPUT_KEYS, key=str)
         if unknown:
-            raise ValueError(f"output.{unknown[0]} is not an output key (known: classes, threshold)")
+            raise ValueError(f"output.{key_text(unknown[0])} is not an output key (known: classes, threshold)")
         n_out = layers[-1].n_out
         classes = out.get("classes")
         if classes is None:
@@ -270,6 +283,7 @@ class Network:
         thr = out.get("threshold", 0.5)
         if not isinstance(thr, (int, float)) or isinstance(thr, bool):
             raise TypeError(f"output.threshold must be a number, not {_short(thr)}")
+        _check_float_range(thr, "output.threshold")
         if not np.isfinite(thr):
             raise ValueError(f"output.threshold must be finite, not {thr!r}")
         net = cls(tuple(layers), tuple(names), int(bits), scale, tuple(classes), float(thr))

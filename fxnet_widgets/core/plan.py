@@ -20,7 +20,7 @@ import os
 from dataclasses import dataclass, fields, replace
 from typing import TYPE_CHECKING, Any
 
-from .fileio import atomic_write_json, load_json
+from .fileio import atomic_write_json, key_text, load_json
 from .formats import OVERFLOWS, ROUNDINGS
 
 if TYPE_CHECKING:
@@ -78,7 +78,7 @@ def _check_field(name: str, value: Any, where: str) -> Any:
         if not isinstance(value, str) or value not in CHOICES[name]:
             raise ValueError(f"{where}{name} must be one of {', '.join(CHOICES[name])}, not {value!r}")
         return value
-    raise ValueError(f"{where}{name} is not a plan key (known: {', '.join(PLAN_FIELDS)})")
+    raise ValueError(f"{where}{key_text(name)} is not a plan key (known: {', '.join(PLAN_FIELDS)})")
 
 
 @dataclass(frozen=True)
@@ -108,7 +108,7 @@ class LayerPlan:
             raise TypeError(f"{where.rstrip('.') or 'layer plan'} must be an object, not {doc!r}")
         for key in doc:
             if key not in PLAN_FIELDS:
-                raise ValueError(f"{where}{key} is not a plan key (known: {', '.join(PLAN_FIELDS)})")
+                raise ValueError(f"{where}{key_text(key)} is not a plan key (known: {', '.join(PLAN_FIELDS)})")
         for key in ALWAYS_REQUIRED:
             if key not in doc:
                 raise ValueError(f"{where}{key} is missing")
@@ -185,7 +185,7 @@ class Plan:
             raise TypeError(f"plan must be a JSON object, not {doc!r}")
         for key in doc:
             if key not in ("kind", "version", "layers"):
-                raise ValueError(f"{key} is not a plan file key (known: kind, layers, version)")
+                raise ValueError(f"{key_text(key)} is not a plan file key (known: kind, layers, version)")
         if doc.get("kind", "fxnet.plan") != "fxnet.plan":
             raise ValueError(f"kind must be 'fxnet.plan', not {doc.get('kind')!r}")
         if doc.get("version", 1) != 1 or isinstance(doc.get("version", 1), bool):

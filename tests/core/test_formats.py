@@ -59,8 +59,9 @@ def test_arithmetic_shift_is_floor_division():
 @given(st.lists(st.integers(-(2**61), 2**61 - 1), min_size=1, max_size=50), st.integers(1, 80))
 def test_shift_round_matches_exact_rationals(values, k):
     # reference: exact rationals (Python fractions) rounded per the IEEE 754 definitions
-    from fxref import rnd
     from fractions import Fraction
+
+    from fxref import rnd
 
     s = np.array(values, dtype=np.int64)
     for mode in ROUNDINGS:

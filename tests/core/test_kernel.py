@@ -3,6 +3,7 @@
 import itertools
 import math
 
+import fxref
 import numpy as np
 import pytest
 from hypothesis import given, settings
@@ -11,8 +12,6 @@ from hypothesis import strategies as st
 import fxnet_widgets as fw
 from fxnet_widgets.core import kernel
 from fxnet_widgets.core.formats import ROUNDINGS
-
-import fxref
 
 W1 = [[0.5, -0.25, 0.125], [1.0, 0.0, -1.0], [-0.75, 0.5, 0.25]]
 B1 = [0.1, -0.2, 0.3]

@@ -1,0 +1,189 @@
+"""Error metrics of a fixed-point plan on data: how far it is from the float network.
+
+Examples
+--------
+>>> import numpy as np
+>>> from fxnet_widgets.core.network import Network
+>>> from fxnet_widgets.core.plan import Plan
+>>> from fxnet_widgets.core.kernel import emulate
+>>> net = Network.from_layers([([[1.0, 1.0, 1.0]], [-1.0], "sigmoid")])
+>>> plan = Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=18,
+...                     table_bits=14, table_frac=10, out_bits=8)
+>>> m = error_metrics(emulate(net, plan, np.array([[128, 128, 128], [0, 0, 0]])), labels=[1, 0])
+>>> m.mismatch, m.accuracy, m.confusion
+(0, 1.0, ((1, 0), (0, 1)))
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..kernel import Emulation
+
+__all__ = ["ErrorMetrics", "error_metrics", "check_labels"]
+
+
+def check_labels(
+    labels: Any, n: int, shape: tuple[int, ...] | None, n_classes: int, what: str = "labels"
+) -> np.ndarray:
+    """Validate class labels for ``n`` samples; return them flat as int64.
+
+    Accepted: ``n`` integers (or an ``H x W`` array for an image of that shape),
+    booleans counting as 0/1, each in ``[0, n_classes)``.
+    """
+    arr = np.asarray(labels)
+    if arr.dtype == np.bool_:
+        arr = arr.astype(np.int64)
+    if arr.dtype.kind not in "iu":
+        raise TypeError(f"{what} must be an array of integer class indices, not {arr.dtype}")
+    if not (arr.shape == (n,) or (shape is not None and arr.shape == tuple(shape))):
+        want = f"({n},)" if shape is None else f"({n},) or {tuple(shape)}"
+        raise ValueError(f"{what} must have shape {want} (one per sample), not {arr.shape}")
+    flat = arr.reshape(-1).astype(np.int64)
+    if flat.size:
+        lo, hi = int(flat.min()), int(flat.max())
+        if lo < 0 or hi >= n_classes:
+            bad = lo if lo < 0 else hi
+            raise ValueError(f"{what} must be between 0 and {n_classes - 1} (class indices), not {bad}")
+    return flat
+
+
+@dataclass(frozen=True, eq=False)
+class ErrorMetrics:
+    """Error of a fixed-point result against the float network (and labels).
+
+    Attributes
+    ----------
+    n : number of samples
+    mismatch, mismatch_fraction : decisions that differ from float (count, fraction)
+    out_frac : fraction bits of the output codes (one output LSB is ``2**-out_frac``)
+    max_abs_error, mean_abs_error : per output, ``|code / 2**out_frac - float|``
+    max_abs_error_lsb, mean_abs_error_lsb : the same in output LSBs
+    accuracy, float_accuracy : fraction of decisions equal to the labels (None without labels)
+    confusion : rows the true class, columns the fixed-point decision (None without labels)
+    classes : class names, in index order
+    per_sample_error : per sample, the largest absolute output error (image-shaped for images)
+    events : event totals of the result
+    """
+
+    n: int
+    mismatch: int
+    mismatch_fraction: float
+    out_frac: int
+    max_abs_error: tuple[float, ...]
+    mean_abs_error: tuple[float, ...]
+    max_abs_error_lsb: tuple[float, ...]
+    mean_abs_error_lsb: tuple[float, ...]
+    accuracy: float | None
+    float_accuracy: float | None
+    confusion: tuple[tuple[int, ...], ...] | None
+    classes: tuple[str, ...]
+    per_sample_error: np.ndarray
+    events: dict[str, int]
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready scalars (the per-sample array is left out)."""
+        return {
+            "samples": self.n,
+            "mismatch": self.mismatch,
+            "mismatch_fraction": self.mismatch_fraction,
+            "out_frac": self.out_frac,
+            "max_abs_error": list(self.max_abs_error),
+            "mean_abs_error": list(self.mean_abs_error),
+            "max_abs_error_lsb": list(self.max_abs_error_lsb),
+            "mean_abs_error_lsb": list(self.mean_abs_error_lsb),
+            "accuracy": self.accuracy,
+            "float_accuracy": self.float_accuracy,
+            "confusion": [list(r) for r in self.confusion] if self.confusion is not None else None,
+            "classes": list(self.classes),
+            "events": dict(self.events),
+        }
+
+    def summary(self) -> str:
+        """Deterministic text summary."""
+        lines = [
+            f"{self.n} samples: {self.mismatch} decisions differ from float ({100 * self.mismatch_fraction:.3f} %)"
+        ]
+        for i, (mx, mn, mxl, mnl) in enumerate(
+            zip(self.max_abs_error, self.mean_abs_error, self.max_abs_error_lsb, self.mean_abs_error_lsb)
+        ):
+            lines.append(
+                f"  output {i}: max |error| {mx:.6g} ({mxl:.3f} LSB), mean |error| {mn:.6g} ({mnl:.3f} LSB)"
+            )
+        if self.accuracy is not None:
+            lines.append(f"  accuracy against labels: fixed {self.accuracy:.5f}, float {self.float_accuracy:.5f}")
+            assert self.confusion is not None
+            width = max(len(c) for c in self.classes)
+            lines.append("  confusion (rows: label, columns: fixed-point decision):")
+            lines.append("    " + " " * width + " " + " ".join(f"{c:>{max(width, 8)}}" for c in self.classes))
+            for c, row in zip(self.classes, self.confusion):
+                lines.append(f"    {c:>{width}} " + " ".join(f"{v:>{max(width, 8)}d}" for v in row))
+        ev = ", ".join(f"{k} {v}" for k, v in self.events.items())
+        lines.append(f"  events: {ev}")
+        return "\n".join(lines)
+
+
+def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
+    """Error metrics of an emulation result against float (and against ``labels``).
+
+    Parameters
+    ----------
+    result
+        An :class:`~fxnet_widgets.core.kernel.Emulation`.
+    labels
+        Optional class indices, one per sample (``N`` or the image's ``H x W``).
+
+    Returns
+    -------
+    ErrorMetrics
+        The output error is ``|code / 2**out_frac - float output|`` per output;
+        in LSBs it is that times ``2**out_frac``.
+    """
+    if not isinstance(result, Emulation):
+        raise TypeError(f"result must be an Emulation, not {type(result).__name__}")
+    net = result.network
+    n = result.n
+    last = result.integer_network.layers[-1]
+    out_frac = int(last.out_frac)
+    fixed = np.ldexp(np.asarray(result.out_codes, dtype=np.float64).reshape(n, -1), -out_frac)
+    ref = np.asarray(result.float_out, dtype=np.float64).reshape(n, -1)
+    err = np.abs(fixed - ref)
+    if n:
+        mx, mn = err.max(axis=0), err.mean(axis=0)
+    else:
+        mx = mn = np.zeros(err.shape[1])
+    dec = np.asarray(result.decisions).reshape(-1)
+    fdec = np.asarray(result.float_decisions).reshape(-1)
+    mismatch = int(np.count_nonzero(dec != fdec))
+    per_sample = err.max(axis=1) if err.shape[1] else np.zeros(n)
+    per_sample = per_sample.reshape(result.shape) if result.shape is not None else per_sample
+    per_sample.setflags(write=False)
+    accuracy = float_accuracy = None
+    confusion = None
+    if labels is not None:
+        k = len(net.classes)
+        lab = check_labels(labels, n, result.shape, k)
+        accuracy = float(np.count_nonzero(dec == lab) / n) if n else 0.0
+        float_accuracy = float(np.count_nonzero(fdec == lab) / n) if n else 0.0
+        cm = np.bincount(lab * k + dec, minlength=k * k).reshape(k, k)
+        confusion = tuple(tuple(int(v) for v in row) for row in cm)
+    scale = 2.0**out_frac
+    return ErrorMetrics(
+        n=n,
+        mismatch=mismatch,
+        mismatch_fraction=mismatch / n if n else 0.0,
+        out_frac=out_frac,
+        max_abs_error=tuple(float(v) for v in mx),
+        mean_abs_error=tuple(float(v) for v in mn),
+        max_abs_error_lsb=tuple(float(v * scale) for v in mx),
+        mean_abs_error_lsb=tuple(float(v * scale) for v in mn),
+        accuracy=accuracy,
+        float_accuracy=float_accuracy,
+        confusion=confusion,
+        classes=tuple(net.classes),
+        per_sample_error=per_sample,
+        events=result.event_totals(),
+    )

@@ -1,0 +1,149 @@
+"""An isometric picture of the whole RGB cube: where fixed point and float disagree.
+
+The picture is drawn with numpy (a z-buffer over small squares, one per voxel)
+and pillow (the cube's edges and axis letters). Agreeing "target" voxels are
+faint amber dots, so the shape of the target region stays visible; voxels where
+the decisions differ are solid squares (magenta: only fixed point says target,
+teal: only float), shaded darker with depth.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from typing import Any
+
+import numpy as np
+from PIL import Image, ImageDraw
+
+from .palette import AGREE_POSITIVE, DISAGREE, FIXED_ONLY, FLOAT_ONLY
+
+__all__ = ["render_cube", "cube_png"]
+
+_BACKGROUND = (250, 250, 247)
+_EDGE = (120, 120, 120)
+_COS30 = math.cos(math.pi / 6)
+
+
+def _project(r: np.ndarray, g: np.ndarray, b: np.ndarray, size: int) -> tuple[np.ndarray, np.ndarray]:
+    """Screen x, y (pixels, float) of cube points in [0, 1]^3 seen from (1, 1, 1)."""
+    scale = size / 2.3
+    x = (r - g) * _COS30 * scale + size / 2
+    y = ((r + g) * 0.5 - b) * scale + size / 2  # screen up is (2b - r - g) / sqrt(6), rescaled
+    return x, y
+
+
+def _segments(size: int) -> tuple[dict, list, list]:
+    """Projected cube corners and the edges: (corners, hidden edges, front edges)."""
+    corners = {
+        (a, b_, c_): _project(np.array([a]), np.array([b_]), np.array([c_]), size)
+        for a in (0, 1)
+        for b_ in (0, 1)
+        for c_ in (0, 1)
+    }
+    hidden, front = [], []
+    for q in corners:
+        for axis in range(3):
+            if q[axis] == 1:
+                continue
+            q2 = list(q)
+            q2[axis] = 1
+            p0, p1 = corners[q], corners[tuple(q2)]
+            seg = [(float(p0[0][0]), float(p0[1][0])), (float(p1[0][0]), float(p1[1][0]))]
+            # the three edges of the far (black) corner lie behind everything
+            (hidden if q == (0, 0, 0) else front).append(seg)
+    return corners, hidden, front
+
+
+def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) -> np.ndarray:
+    """The isometric picture (size x size x 3 uint8) of an (n, n, n) decision grid.
+
+    ``fixed[i, j, k]`` and ``float_[i, j, k]`` are the decisions at red index i,
+    green j, blue k of a regular grid over the cube (black corner at index 0).
+    """
+    fx = np.asarray(fixed)
+    fl = np.asarray(float_)
+    if fx.ndim != 3 or fx.shape != fl.shape or len(set(fx.shape)) != 1 or fx.shape[0] < 2:
+        raise ValueError(f"fixed and float must be (n, n, n) arrays of one shape, not {fx.shape} and {fl.shape}")
+    if not isinstance(size, (int, np.integer)) or not 64 <= size <= 2048:
+        raise ValueError(f"size must be an integer between 64 and 2048, not {size!r}")
+    n = fx.shape[0]
+    corners, hidden, front = _segments(size)
+    back = Image.new("RGB", (size, size), _BACKGROUND)
+    for seg in hidden:
+        ImageDraw.Draw(back).line(seg, fill=(200, 200, 200), width=1)
+    img = np.array(back)
+    i, j, k = np.indices(fx.shape).reshape(3, -1)
+    pos = (np.stack([i, j, k]).astype(np.float64) + 0.5) / n
+    fxf, flf = fx.reshape(-1), fl.reshape(-1)
+    diff = fxf != flf
+    # faint dots: agreeing target voxels (binary) / non-zero classes
+    agree_pos = (~diff) & (fxf != 0)
+    if agree_pos.any():
+        x, y = _project(*pos[:, agree_pos], size)
+        xi, yi = np.rint(x).astype(np.int64), np.rint(y).astype(np.int64)
+        ok = (xi >= 0) & (xi < size) & (yi >= 0) & (yi < size)
+        faint = (np.array(AGREE_POSITIVE, dtype=np.float64) * 0.7 + np.array(_BACKGROUND) * 0.3).astype(np.uint8)
+        img[yi[ok], xi[ok]] = faint
+    if diff.any():
+        if n_classes == 2:
+            colour = np.where((fxf[diff] > flf[diff])[:, None], np.array(FIXED_ONLY), np.array(FLOAT_ONLY))
+        else:
+            colour = np.broadcast_to(np.array(DISAGREE), (int(diff.sum()), 3))
+        p = pos[:, diff]
+        level = (i + j + k)[diff]  # larger is nearer the viewer at (1, 1, 1)
+        x, y = _project(*p, size)
+        cx, cy = np.rint(x).astype(np.int64), np.rint(y).astype(np.int64)
+        half = max(1, int(round(size / (2.3 * n) * 0.6)))
+        off = np.arange(-half, half + 1)
+        ox, oy = (v.reshape(-1) for v in np.meshgrid(off, off))
+        edge = (np.abs(ox) == half) | (np.abs(oy) == half)  # square edges darker: separate voxels
+        shade = (0.6 + 0.4 * level / (3.0 * (n - 1)))[:, None]
+
+        def packed(rgb: np.ndarray) -> np.ndarray:  # RGB in one uint32: one store per pixel
+            c = np.clip(rgb, 0, 255).astype(np.uint32)
+            return (c[:, 0] << 16) | (c[:, 1] << 8) | c[:, 2]
+
+        inner, rim = packed(colour * shade), packed(colour * shade * 0.78)
+        pad = half + 1
+        side = size + 2 * pad
+        canvas = np.full(side * side, 0xFFFFFFFF, dtype=np.uint32)  # "nothing drawn"
+        base = (
+            (np.clip(cy, -pad + half, size + pad - half - 1) + pad) * side
+            + np.clip(cx, -pad + half, size + pad - half - 1)
+            + pad
+        )
+        offsets = oy * side + ox
+        # painter's algorithm by depth level: voxels of one level never cover each other
+        order = np.argsort(level, kind="stable")
+        bounds = np.flatnonzero(np.diff(level[order])) + 1
+        for grp in np.split(order, bounds):
+            idx = base[grp][:, None] + offsets[None, :]
+            canvas[idx] = np.where(edge[None, :], rim[grp][:, None], inner[grp][:, None])
+        canvas = canvas.reshape(side, side)[pad : pad + size, pad : pad + size]
+        drawn = canvas != 0xFFFFFFFF
+        v = canvas[drawn]
+        img[drawn] = np.stack([(v >> 16) & 255, (v >> 8) & 255, v & 255], axis=1).astype(np.uint8)
+    pil = Image.fromarray(img)
+    draw = ImageDraw.Draw(pil)
+    for seg in front:
+        draw.line(seg, fill=_EDGE, width=1)
+    for label, q, col in (
+        ("R", (1, 0, 0), (200, 40, 40)),
+        ("G", (0, 1, 0), (30, 140, 40)),
+        ("B", (0, 0, 1), (40, 70, 200)),
+    ):
+        x0, y0 = corners[q]
+        draw.text(
+            (float(x0[0]) + (4 if label == "R" else -12 if label == "G" else 4), float(y0[0]) - 6),
+            label,
+            fill=col,
+        )
+    return np.asarray(pil)
+
+
+def cube_png(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2, compress_level: int = 1) -> bytes:
+    """PNG bytes of :func:`render_cube`."""
+    buf = io.BytesIO()
+    Image.fromarray(render_cube(fixed, float_, size, n_classes)).save(buf, format="PNG", compress_level=compress_level)
+    return buf.getvalue()

@@ -1,0 +1,61 @@
+"""The colours of every picture (one place, so masks, heat maps and cube agree).
+
+A binary classifier's pictures use four colours: both say "other", both say
+"target", only the fixed-point network says "target", only the float network
+says "target". Several classes get one colour each plus one for disagreement.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = [
+    "AGREE_NEGATIVE",
+    "AGREE_POSITIVE",
+    "FIXED_ONLY",
+    "FLOAT_ONLY",
+    "DISAGREE",
+    "class_colours",
+    "slice_palette",
+    "hex_colour",
+]
+
+AGREE_NEGATIVE = (36, 40, 52)  # slate: both say "other"
+AGREE_POSITIVE = (242, 183, 5)  # amber: both say "target" (ripe fruit)
+FIXED_ONLY = (214, 45, 123)  # magenta: fixed point says target, float does not
+FLOAT_ONLY = (26, 170, 190)  # teal: float says target, fixed point does not
+DISAGREE = (214, 45, 123)  # several classes: any disagreement
+_EXTRA = [
+    (87, 148, 74),
+    (122, 90, 200),
+    (230, 110, 40),
+    (150, 150, 150),
+    (70, 120, 200),
+    (200, 80, 80),
+]
+
+
+def class_colours(n_classes: int) -> np.ndarray:
+    """``(n_classes, 3)`` uint8 colours of the classes (binary: slate, amber)."""
+    if not isinstance(n_classes, (int, np.integer)) or n_classes < 2:
+        raise ValueError(f"n_classes must be an integer >= 2, not {n_classes!r}")
+    base = [AGREE_NEGATIVE, AGREE_POSITIVE, *_EXTRA]
+    cols = [base[i % len(base)] for i in range(int(n_classes))]
+    return np.array(cols, dtype=np.uint8)
+
+
+def slice_palette(n_classes: int) -> np.ndarray:
+    """Colours of the comparison codes of :func:`~fxnet_widgets.render.comparison_codes`.
+
+    Binary: ``[both other, both target, fixed only, float only]``. Several
+    classes: one per class (agreement on that class) and one for disagreement.
+    """
+    if n_classes == 2:
+        return np.array([AGREE_NEGATIVE, AGREE_POSITIVE, FIXED_ONLY, FLOAT_ONLY], dtype=np.uint8)
+    return np.vstack([class_colours(n_classes), np.array([DISAGREE], dtype=np.uint8)])
+
+
+def hex_colour(rgb: tuple[int, int, int] | np.ndarray) -> str:
+    """``#rrggbb`` of an RGB triple."""
+    r, g, b = (int(v) for v in rgb)
+    return f"#{r:02x}{g:02x}{b:02x}"

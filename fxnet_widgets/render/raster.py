@@ -1,0 +1,170 @@
+"""Decision masks, disagreement overlay and preview downscaling as PNG bytes.
+
+Masks are palette PNGs (one byte per pixel): small and fast to encode, and they
+decode (``Image.open(...).convert("RGB")``) to exactly the palette colour of
+each pixel's decision, so a test can read the decisions back.
+
+>>> import io
+>>> from PIL import Image
+>>> png = decision_mask_png(np.array([[0, 1]]), 2)
+>>> np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).tolist()
+[[[36, 40, 52], [242, 183, 5]]]
+"""
+
+from __future__ import annotations
+
+import io
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from PIL import Image
+
+from .palette import FIXED_ONLY, FLOAT_ONLY, class_colours
+
+__all__ = [
+    "MAX_PREVIEW_WIDTH",
+    "DownscaledImage",
+    "comparison_codes",
+    "decision_mask_png",
+    "downscale",
+    "overlay_png",
+    "palette_png",
+    "png_bytes",
+]
+
+#: widest live preview (pixels); wider images are subsampled by a whole factor
+MAX_PREVIEW_WIDTH = 640
+_GREY_LEVELS = 64  # overlay background: dimmed luminance in this many palette steps
+
+
+def _check_level(compress_level: Any) -> int:
+    if not isinstance(compress_level, (int, np.integer)) or not 0 <= compress_level <= 9:
+        raise ValueError(f"compress_level must be an integer between 0 and 9, not {compress_level!r}")
+    return int(compress_level)
+
+
+def png_bytes(codes: Any, compress_level: int = 1) -> bytes:
+    """PNG bytes of an H x W x 3 (RGB) or H x W (grey) uint8 array.
+
+    ``compress_level`` 1 is fast (live views); 6 is smaller (reports).
+    """
+    arr = np.asarray(codes)
+    if arr.dtype != np.uint8:
+        raise TypeError(f"image must be a uint8 array, not {arr.dtype}")
+    if not (arr.ndim == 2 or (arr.ndim == 3 and arr.shape[2] == 3)) or arr.size == 0:
+        raise ValueError(f"image must be H x W or H x W x 3 with pixels, not shape {arr.shape}")
+    buf = io.BytesIO()
+    Image.fromarray(np.ascontiguousarray(arr)).save(buf, format="PNG", compress_level=_check_level(compress_level))
+    return buf.getvalue()
+
+
+def palette_png(index: Any, palette: Any, compress_level: int = 1) -> bytes:
+    """PNG bytes of an H x W array of palette indices (< 256) and an (n, 3) uint8 palette."""
+    idx = np.asarray(index)
+    pal = np.asarray(palette)
+    if idx.ndim != 2 or idx.size == 0:
+        raise ValueError(f"index must be a non-empty H x W array, not shape {idx.shape}")
+    if idx.dtype.kind not in "iu" or idx.dtype == np.bool_:
+        raise TypeError(f"index must hold integers, not {idx.dtype}")
+    if pal.ndim != 2 or pal.shape[1] != 3 or not 1 <= pal.shape[0] <= 256 or pal.dtype != np.uint8:
+        raise ValueError(f"palette must be an (n, 3) uint8 array with 1 <= n <= 256, not {pal.dtype} {pal.shape}")
+    lo, hi = int(idx.min()), int(idx.max())
+    if lo < 0 or hi >= pal.shape[0]:
+        raise ValueError(f"index must be between 0 and {pal.shape[0] - 1}, not {lo if lo < 0 else hi}")
+    im = Image.fromarray(np.ascontiguousarray(idx, dtype=np.uint8), mode="P")
+    im.putpalette(pal.reshape(-1).tolist())
+    buf = io.BytesIO()
+    im.save(buf, format="PNG", compress_level=_check_level(compress_level))
+    return buf.getvalue()
+
+
+def decision_mask_png(decisions: Any, n_classes: int, compress_level: int = 1) -> bytes:
+    """PNG of an H x W decision array, one colour per class (:func:`class_colours`)."""
+    dec = np.asarray(decisions)
+    return palette_png(dec, class_colours(n_classes), compress_level)
+
+
+def comparison_codes(fixed: Any, float_: Any, n_classes: int) -> np.ndarray:
+    """One small integer per element comparing fixed and float decisions (uint8).
+
+    Binary (``n_classes == 2``): 0 both other, 1 both target, 2 only fixed point
+    says target, 3 only float says target. Several classes: the agreed class,
+    or ``n_classes`` where they disagree. Colours: :func:`slice_palette`.
+    """
+    fx = np.asarray(fixed)
+    fl = np.asarray(float_)
+    if fx.shape != fl.shape:
+        raise ValueError(f"fixed and float decisions must have the same shape, not {fx.shape} and {fl.shape}")
+    if n_classes == 2:
+        out = np.where(fx == fl, fx, np.where(fx > fl, 2, 3))
+    else:
+        out = np.where(fx == fl, fx, n_classes)
+    return out.astype(np.uint8)
+
+
+def overlay_png(codes: Any, fixed: Any, float_: Any, n_classes: int = 2, compress_level: int = 1) -> bytes:
+    """The input dimmed to grey with the disagreeing pixels coloured.
+
+    Magenta: only the fixed-point network says target (or, with several
+    classes, any disagreement); teal: only the float network says target.
+    """
+    img = np.asarray(codes)
+    fx = np.asarray(fixed)
+    fl = np.asarray(float_)
+    if img.ndim != 3 or img.shape[2] != 3 or img.dtype != np.uint8:
+        raise ValueError(f"image must be an H x W x 3 uint8 array, not {img.dtype} {img.shape}")
+    if fx.shape != img.shape[:2] or fl.shape != img.shape[:2]:
+        raise ValueError(f"decisions must have the image's shape {img.shape[:2]}, not {fx.shape} and {fl.shape}")
+    # integer luminance (ITU-R BT.601 weights 299/587/114), dimmed to 0..~150
+    lum = (
+        img[..., 0].astype(np.uint32) * 299 + img[..., 1].astype(np.uint32) * 587 + img[..., 2].astype(np.uint32) * 114
+    )
+    idx = (lum * _GREY_LEVELS // (1000 * 256)).astype(np.uint8)
+    idx[fx != fl] = _GREY_LEVELS
+    if n_classes == 2:
+        idx[(fx == 0) & (fl == 1)] = _GREY_LEVELS + 1
+    grey = (np.arange(_GREY_LEVELS, dtype=np.uint32) * 150 // (_GREY_LEVELS - 1) + 40).astype(np.uint8)
+    pal = np.vstack([np.repeat(grey[:, None], 3, axis=1), np.array([FIXED_ONLY, FLOAT_ONLY], dtype=np.uint8)])
+    return palette_png(idx, pal, compress_level)
+
+
+@dataclass(frozen=True)
+class DownscaledImage:
+    """An image subsampled for a live preview (every ``factor``-th row and column)."""
+
+    codes: np.ndarray
+    factor: int
+    full_shape: tuple[int, int]
+
+    @property
+    def downscaled(self) -> bool:
+        return self.factor > 1
+
+    @property
+    def note(self) -> str:
+        h, w = self.full_shape
+        if self.factor == 1:
+            return f"full resolution {w}x{h}"
+        ph, pw = self.codes.shape[:2]
+        return f"preview {pw}x{ph}: every {self.factor}th pixel of the {w}x{h} input"
+
+
+def downscale(codes: Any, max_width: int = MAX_PREVIEW_WIDTH) -> DownscaledImage:
+    """Keep every ``factor``-th pixel so the width is at most ``max_width``.
+
+    Subsampling (not averaging) keeps real pixel colours, so the preview's
+    decisions are decisions on colours that occur in the input.
+
+    >>> downscale(np.zeros((2160, 3840, 3), np.uint8)).codes.shape
+    (360, 640, 3)
+    """
+    img = np.asarray(codes)
+    if img.ndim != 3 or img.shape[0] == 0 or img.shape[1] == 0:
+        raise ValueError(f"image must be an H x W x C array with pixels, not shape {img.shape}")
+    if not isinstance(max_width, (int, np.integer)) or max_width < 1:
+        raise ValueError(f"max_width must be a positive integer, not {max_width!r}")
+    h, w = int(img.shape[0]), int(img.shape[1])
+    factor = max(1, -(-w // int(max_width)))
+    small = img if factor == 1 else np.ascontiguousarray(img[::factor, ::factor])
+    return DownscaledImage(small, factor, (h, w))

@@ -1,0 +1,210 @@
+"""Decision boundary in RGB space: three slice heat maps and a whole-cube picture.
+
+:class:`SlicePlot` draws one slice of the input cube (R-G at a chosen blue, R-B
+at a chosen green, G-B at a chosen red) as a bqplot canvas ``HeatMap`` whose
+cells say, per grid point, whether fixed point and float agree (and on which
+class) or which of them alone says "target"; labelled samples near the slice are
+drawn on top as points. :class:`BoundaryPanel` puts the three slices side by
+side with their position sliders and a legend; :class:`CubePanel` shows the
+isometric picture of every disagreeing grid point of the whole cube.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import html
+from typing import Any
+
+import bqplot as bq
+import ipywidgets as w
+import numpy as np
+import traitlets as t
+
+from ..render.cube import cube_png
+from ..render.palette import class_colours, hex_colour, slice_palette
+from ..render.raster import comparison_codes
+from .session import SLICES, Session, SessionResult
+
+__all__ = ["SlicePlot", "BoundaryPanel", "CubePanel", "MODES"]
+
+#: what a slice shows: both decisions compared, or one of them
+MODES = ("fixed vs float", "fixed point", "float")
+_POSITION_TRAIT = {2: "slice_blue", 1: "slice_green", 0: "slice_red"}
+
+
+def _legend(classes: tuple[str, ...]) -> str:
+    pal = slice_palette(len(classes))
+    if len(classes) == 2:
+        names = [f"both {classes[0]}", f"both {classes[1]}", f"only fixed point: {classes[1]}",
+                 f"only float: {classes[1]}"]  # fmt: skip
+    else:
+        names = [f"both {c}" for c in classes] + ["they disagree"]
+    items = [
+        f'<span style="display:inline-block;width:12px;height:12px;background:{hex_colour(c)};'
+        f'margin:0 4px 0 10px;vertical-align:middle"></span>{html.escape(n)}'
+        for c, n in zip(pal, names)
+    ]
+    return "<div style='font-size:12px'>" + "".join(items) + "</div>"
+
+
+class SlicePlot(w.VBox):
+    """One slice of the input cube as a canvas heat map, with its position slider.
+
+    Parameters
+    ----------
+    session
+        The shared session.
+    which
+        0 (R-G at blue), 1 (R-B at green) or 2 (G-B at red).
+    size
+        Figure width and height in pixels.
+
+    Attributes
+    ----------
+    heatmap : bqplot.HeatMap
+        ``color[iy, ix]`` (float32) is the value shown at (``x[ix]``, ``y[iy]``):
+        :func:`~fxnet_widgets.render.comparison_codes` of the fixed and float
+        decisions, or one decision (see ``mode``).
+    points : bqplot.Scatter
+        Samples within a few codes of the slice, coloured by label.
+    position : ipywidgets.IntSlider
+        The third input's code (linked to the session's slice trait).
+    """
+
+    mode = t.Enum(MODES, default_value=MODES[0])
+
+    def __init__(self, session: Session, which: int = 0, size: int = 300, **kwargs: Any) -> None:
+        if not isinstance(session, Session):
+            raise TypeError(f"session must be a Session, not {type(session).__name__}")
+        if which not in (0, 1, 2):
+            raise ValueError(f"which must be 0, 1 or 2, not {which!r}")
+        if not session.cube_ok:
+            raise ValueError("slices need a network with 3 inputs")
+        self.session = session
+        self.which = which
+        name, xi, yi, fi = SLICES[which]
+        names = session.network.input_names
+        n_cls = len(session.network.classes)
+        self._n_classes = n_cls
+        hi = float((1 << session.network.input_bits) - 1)
+        self.xs = bq.LinearScale(min=0.0, max=hi)
+        self.ys = bq.LinearScale(min=0.0, max=hi)
+        n_col = n_cls + 2 if n_cls == 2 else n_cls + 1
+        self.cs = bq.ColorScale(colors=[hex_colour(c) for c in slice_palette(n_cls)], min=0.0, max=float(n_col - 1))
+        c = session.slice_codes.astype(np.float32)
+        self.heatmap = bq.HeatMap(
+            x=c,
+            y=c,
+            color=np.zeros((c.size, c.size), np.float32),
+            scales={"x": self.xs, "y": self.ys, "color": self.cs},
+        )
+        self.class_scale = bq.ColorScale(colors=[hex_colour(c) for c in class_colours(n_cls)], min=0.0,
+                                         max=float(n_cls - 1))  # fmt: skip
+        self.points = bq.Scatter(
+            x=np.zeros(0, np.float32), y=np.zeros(0, np.float32), color=np.zeros(0, np.float32),
+            scales={"x": self.xs, "y": self.ys, "color": self.class_scale}, stroke="white",
+            default_size=24, marker="circle",
+        )  # fmt: skip
+        ticks = np.array([0, hi * 0.25, hi * 0.5, hi * 0.75, hi], dtype=np.float32).round()
+        ax_x = bq.Axis(scale=self.xs, label=names[xi], tick_values=ticks, tick_format="d")
+        ax_y = bq.Axis(scale=self.ys, label=names[yi], side="left", tick_values=ticks, tick_format="d")
+        self.figure = bq.Figure(
+            marks=[self.heatmap, self.points], axes=[ax_x, ax_y], title=name,
+            fig_margin={"top": 30, "bottom": 40, "left": 45, "right": 10},
+            layout=w.Layout(width=f"{size}px", height=f"{size}px"), padding_x=0, padding_y=0,
+        )  # fmt: skip
+        trait = _POSITION_TRAIT[fi]
+        self.position = w.IntSlider(
+            value=getattr(session, trait), min=0, max=int(hi), description=f"{names[fi]} code",
+            continuous_update=True, layout=w.Layout(width=f"{size}px"),
+        )  # fmt: skip
+        self._trait = trait
+        self.position.observe(self._moved, names="value")
+        session.observe(lambda c: setattr(self.position, "value", c["new"]), names=trait)
+        self.caption = w.HTML(layout=w.Layout(width=f"{size}px"))
+        super().__init__([self.figure, self.position, self.caption], **kwargs)
+        self._last: Any = None
+        self.observe(lambda _c: self._draw(self.session.result, force=True), names="mode")
+        session.add_view(f"slice {name}", self._draw)
+
+    def _moved(self, change: Any) -> None:
+        if getattr(self.session, self._trait) == change["new"]:
+            return
+        # a drag in the browser: coalesce (latest value wins); from code: compute now
+        ctx = self.session.deferred() if self.position._property_lock else contextlib.nullcontext()
+        with ctx:
+            setattr(self.session, self._trait, change["new"])
+
+    def values(self, result: SessionResult) -> np.ndarray:
+        """The array this plot shows for ``result`` (uint8; see ``mode``)."""
+        assert result.slices is not None
+        sl = result.slices[self.which]
+        if self.mode == "fixed point":
+            return np.asarray(sl.fixed, dtype=np.uint8)
+        if self.mode == "float":
+            return np.asarray(sl.float_, dtype=np.uint8)
+        return comparison_codes(sl.fixed, sl.float_, result.n_classes)
+
+    def _draw(self, result: SessionResult, force: bool = False) -> None:
+        assert result.slices is not None
+        sl = result.slices[self.which]
+        if sl is self._last and not force:
+            return
+        self._last = sl
+        color = self.values(result).astype(np.float32)
+        with self.heatmap.hold_sync():
+            self.heatmap.x = sl.x.astype(np.float32)
+            self.heatmap.y = sl.y.astype(np.float32)
+            self.heatmap.color = color
+        with self.points.hold_sync():
+            self.points.x = sl.points_x.astype(np.float32)
+            self.points.y = sl.points_y.astype(np.float32)
+            self.points.color = sl.points_class.astype(np.float32)
+        self.caption.value = (
+            f"<span style='font-size:12px'>{sl.mismatch} of {sl.fixed.size} grid points differ; "
+            f"{sl.points_x.size} labelled samples within {sl.tolerance} codes (dots, filled with their label's colour)"
+            "</span>"
+        )
+
+
+class BoundaryPanel(w.VBox):
+    """The three slices side by side, a mode choice and the legend."""
+
+    def __init__(self, session: Session, size: int = 300, **kwargs: Any) -> None:
+        self.session = session
+        self.slices = [SlicePlot(session, i, size) for i in range(3)]
+        self.mode = w.ToggleButtons(options=list(MODES), value=MODES[0], description="show")
+        for sp in self.slices:
+            t.link((self.mode, "value"), (sp, "mode"))
+        self.legend = w.HTML(_legend(tuple(session.network.classes)))
+        super().__init__([w.HBox([self.mode, self.legend]), w.HBox(self.slices)], **kwargs)
+
+
+class CubePanel(w.VBox):
+    """An isometric picture of the disagreeing points of the whole input cube."""
+
+    def __init__(self, session: Session, size: int = 256, **kwargs: Any) -> None:
+        if not isinstance(session, Session):
+            raise TypeError(f"session must be a Session, not {type(session).__name__}")
+        if not session.cube_ok:
+            raise ValueError("the cube picture needs a network with 3 inputs")
+        self.session = session
+        self.size = size
+        self.image = w.Image(format="png", layout=w.Layout(width=f"{size}px", height=f"{size}px"))
+        self.caption = w.HTML()
+        super().__init__([w.HTML("<b>whole RGB cube: where they differ</b>"), self.image, self.caption], **kwargs)
+        self._last: Any = None
+        session.add_view("cube", self._draw)
+
+    def _draw(self, result: SessionResult) -> None:
+        cube = result.cube
+        assert cube is not None
+        if cube is self._last:
+            return
+        self._last = cube
+        self.image.value = cube_png(cube.fixed, cube.float_, self.size, result.n_classes)
+        n = cube.grid.size
+        self.caption.value = (
+            f"<span style='font-size:12px'>{cube.mismatch} of {n**3} grid points differ "
+            f"(grid {n}x{n}x{n}, codes {int(cube.grid[0])}..{int(cube.grid[-1])})</span>"
+        )

@@ -1,0 +1,146 @@
+"""The explorer: every view on one session, in a layout that fits a notebook.
+
+>>> from fxnet_widgets import Explorer  # doctest: +SKIP
+>>> ex = Explorer.demo()                 # doctest: +SKIP
+>>> ex                                   # doctest: +SKIP
+>>> ex.plan.save("my-plan.json")         # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import ipywidgets as w
+
+from ..core.images import read_image
+from ..core.network import Network
+from ..core.plan import Plan
+from .boundary import BoundaryPanel, CubePanel
+from .controls import PlanControlsPanel
+from .events import EventsPlot, HistogramsPanel
+from .metrics import MetricsPanel
+from .preview import PreviewPanel
+from .session import Session
+from .status import StatusLinePanel
+
+__all__ = ["Explorer", "demo_explorer", "DEMO_ASSETS"]
+
+#: the demo files (produce-sorting line: ripe fruit by colour)
+DEMO_ASSETS = Path(__file__).resolve().parents[2] / "assets"
+
+
+class Explorer(w.VBox):
+    """Controls, status line, slices, cube, events, histograms, preview and metrics.
+
+    Parameters
+    ----------
+    network
+        The float network (or a path to its file).
+    image
+        Optional H x W x 3 uint8 codes or an image path.
+    samples, labels
+        Optional N x 3 codes and labels; ``labels`` may instead be H x W, for the image.
+    image_labels
+        Optional H x W labels of the image (accuracy in the metrics panel).
+    plan
+        Starting plan (or a path); default: :func:`~fxnet_widgets.widgets.session.default_plan`.
+    session_options
+        Passed to :class:`~fxnet_widgets.widgets.session.Session` (``slice_points``...).
+    """
+
+    def __init__(
+        self,
+        network: Network | str | Path,
+        image: Any = None,
+        samples: Any = None,
+        labels: Any = None,
+        plan: Plan | str | Path | None = None,
+        *,
+        image_labels: Any = None,
+        **session_options: Any,
+    ) -> None:
+        if isinstance(network, (str, Path)):
+            network = Network.load(network)
+        if isinstance(plan, (str, Path)):
+            plan = Plan.load(plan, network)
+        self.session = Session(
+            network, image=image, samples=samples, labels=labels, plan=plan, image_labels=image_labels,
+            **session_options,
+        )  # fmt: skip
+        s = self.session
+        self.status = StatusLinePanel(s)
+        self.controls = PlanControlsPanel(s)
+        self.metrics = MetricsPanel(s, layout=w.Layout(width="560px"))
+        self.events = EventsPlot(s)
+        self.histograms = HistogramsPanel(s)
+        tabs: list[tuple[str, w.Widget]] = []
+        self.boundary = self.cube = None
+        if s.cube_ok:
+            self.boundary = BoundaryPanel(s)
+            self.cube = CubePanel(s)
+            tabs.append(("decision boundary", w.HBox([self.boundary, self.cube])))
+        self.preview = None
+        if s.image is not None:
+            self.preview = PreviewPanel(s)
+            tabs.append(("image", self.preview))
+        tabs.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
+        self.tabs = w.Tab(children=[c for _, c in tabs])
+        for i, (title, _) in enumerate(tabs):
+            self.tabs.set_title(i, title)
+        super().__init__([w.HBox([self.controls, self.metrics]), self.status, self.tabs])
+        self.add_class("fxnet-explorer")
+
+    @classmethod
+    def demo(cls, assets: str | Path | None = None, samples: int = 300) -> Explorer:
+        """The demo: the produce-sorting network, its plan, the test scene and its mask.
+
+        ``samples`` labelled pixels of the test scene (drawn with a fixed seed,
+        balanced between classes) are shown as points on the slices.
+        """
+        from ..core.labels import labels_from_mask, sample_pixels
+
+        root = Path(assets) if assets is not None else DEMO_ASSETS
+        net = Network.load(root / "network.json")
+        plan = Plan.load(root / "plan.json", net)
+        img = read_image(root / "scene-test.png")
+        pixels = labels_from_mask(img.codes, read_image(root / "scene-test-mask.png").codes)
+        h, wd = img.shape
+        image_labels = pixels.labels.reshape(h, wd)
+        if not samples:
+            return cls(net, image=img, plan=plan, image_labels=image_labels)
+        split = sample_pixels(pixels, n=max(int(samples), 4), validation=0.5, seed=0)
+        return cls(net, image=img, samples=split.val_codes, labels=split.val_labels, plan=plan,
+                   image_labels=image_labels)  # fmt: skip
+
+    @property
+    def plan(self) -> Plan:
+        """The current plan (a value: save it with ``explorer.plan.save(path)``)."""
+        return self.session.plan
+
+    @plan.setter
+    def plan(self, plan: Plan) -> None:
+        self.session.plan = plan
+
+    def summary(self) -> str:
+        """Deterministic text of what the views show (for notebooks and reports)."""
+        return self.session.summary() + "\nstatus: " + self.status.text
+
+    def save_report(self, path: str | Path, *, offline_bundles: str | Path | None = None, title: str | None = None) -> Path:
+        """Write a one-file HTML report of the current state (see :func:`fxnet_widgets.report.save_report`).
+
+        The report reads without JavaScript (tables and pictures rendered in Python) and
+        carries the widgets with their state; ``offline_bundles`` makes it open offline.
+        """
+        from ..report import save_report
+
+        return save_report(self, path, offline_bundles=offline_bundles, title=title)
+
+    def __repr__(self) -> str:
+        shape = "-".join(map(str, self.session.network.shape))
+        return f"<Explorer {shape}: {self.plan!r}>"
+
+
+def demo_explorer(assets: str | Path | None = None) -> Explorer:
+    """:meth:`Explorer.demo` as a function (the quick-start notebook calls it)."""
+    return Explorer.demo(assets)

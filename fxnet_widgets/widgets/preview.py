@@ -1,0 +1,86 @@
+"""The processed image: input, float mask, fixed-point mask and disagreement overlay.
+
+While a slider moves the kernel runs on a subsampled preview (at most
+``preview_width`` pixels wide, every n-th pixel of the input) and a note says
+so; the "full resolution" toggle runs the whole image. The PNGs are rendered
+by :mod:`fxnet_widgets.render` and decode to exactly the decisions shown.
+"""
+
+from __future__ import annotations
+
+import html
+from typing import Any
+
+import ipywidgets as w
+import traitlets as t
+
+from ..render.raster import decision_mask_png, overlay_png, png_bytes
+from .session import Session, SessionResult
+
+__all__ = ["PreviewPanel"]
+
+
+class PreviewPanel(w.VBox):
+    """Four images side by side and the full-resolution toggle.
+
+    Attributes
+    ----------
+    input_image, float_image, fixed_image, overlay_image : ipywidgets.Image
+        PNG bytes of the input codes, the float decisions, the fixed-point
+        decisions and the input dimmed with the disagreeing pixels coloured.
+    full_resolution : ipywidgets.ToggleButton
+        Linked to ``session.full_resolution``.
+    note : ipywidgets.HTML
+        Says whether the images are a subsampled preview.
+    """
+
+    def __init__(self, session: Session, width: int = 300, **kwargs: Any) -> None:
+        if not isinstance(session, Session):
+            raise TypeError(f"session must be a Session, not {type(session).__name__}")
+        if session.image is None:
+            raise ValueError("the preview needs a session with an image")
+        self.session = session
+        h, wd = session.image.shape[:2]
+        height = max(1, round(width * h / wd))
+        lay = {"width": f"{width}px", "height": f"{height}px"}
+
+        def img() -> w.Image:
+            return w.Image(format="png", layout=w.Layout(**lay))
+
+        self.input_image, self.float_image, self.fixed_image, self.overlay_image = img(), img(), img(), img()
+        titles = ["input", "float decision", "fixed-point decision", "where they differ"]
+        cells = [
+            w.VBox([w.HTML(f"<b>{title}</b>"), im])
+            for title, im in zip(titles, (self.input_image, self.float_image, self.fixed_image, self.overlay_image))
+        ]
+        self.full_resolution = w.ToggleButton(
+            value=session.full_resolution, description="full resolution",
+            tooltip="compute every pixel (slower); off: a subsampled live preview",
+        )  # fmt: skip
+        self._link = t.link((self.full_resolution, "value"), (session, "full_resolution"))
+        self.note = w.HTML()
+        self._codes: Any = None
+        self._last: Any = None
+        super().__init__([w.HBox(cells[:2]), w.HBox(cells[2:]), w.HBox([self.full_resolution, self.note])], **kwargs)
+        session.add_view("preview", self._draw)
+
+    def _draw(self, result: SessionResult) -> None:
+        im = result.image
+        assert im is not None
+        if im is self._last:
+            return
+        self._last = im
+        n = result.n_classes
+        # the float decisions depend on the codes only; the session keeps each codes array alive
+        if im.codes is not self._codes:
+            self._codes = im.codes
+            self.input_image.value = png_bytes(im.codes)
+            self.float_image.value = decision_mask_png(im.float_, n)
+        self.fixed_image.value = decision_mask_png(im.fixed, n)
+        self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n)
+        flag = " (downscaled: use full resolution for every pixel)" if im.factor > 1 else ""
+        self.note.value = (
+            f"<span style='font-size:12px'>{html.escape(im.note)}{flag}; {im.mismatch} of {im.fixed.size} "
+            f"pixels differ (magenta: only fixed point says {html.escape(result.classes[-1])}, "
+            f"teal: only float)</span>"
+        )

@@ -1,0 +1,76 @@
+"""The status line (what was computed, or what went wrong) and a sweep progress bar."""
+
+from __future__ import annotations
+
+import html
+from typing import Any
+
+import ipywidgets as w
+
+from .session import Session, SessionResult
+
+__all__ = ["StatusLinePanel", "SweepProgressBar"]
+
+
+class StatusLinePanel(w.HTML):
+    """One visible line: the current plan's state, a computation error, view errors.
+
+    Errors never hide in a log: a plan the kernel refuses shows here in red (the
+    other views keep the last plan that worked), and so does a failing view.
+    """
+
+    def __init__(self, session: Session, **kwargs: Any) -> None:
+        if not isinstance(session, Session):
+            raise TypeError(f"session must be a Session, not {type(session).__name__}")
+        super().__init__(**kwargs)
+        self.session = session
+        self.add_class("fxnet-status")
+        session.observe(lambda _c: self._show(), names=["error", "view_errors", "version"])
+        session.add_view("status", lambda _r: self._show())
+
+    @property
+    def text(self) -> str:
+        """The line as plain text (deterministic)."""
+        s = self.session
+        parts = []
+        if s.error:
+            shown = s.result.plan if s._result is not None else None
+            parts.append(f"error: {s.error}" + (" (views show the last plan that worked)" if shown else ""))
+        for msg in s.view_errors.values():
+            parts.append(f"view error: {msg}")
+        if not parts:
+            r: SessionResult = s.result
+            ev = r.event_totals()
+            parts.append(
+                f"ok: update {s.version}, accumulator overflows {ev['acc_overflow']}, "
+                f"table clamps {ev['table_low'] + ev['table_high']}, clipped weights {ev['weight_clip']}"
+            )
+        return "; ".join(parts)
+
+    def _show(self) -> None:
+        s = self.session
+        bad = bool(s.error or s.view_errors)
+        colour = "#b00020" if bad else "#2d6a2d"
+        self.value = f'<span style="color:{colour};font-family:monospace">{html.escape(self.text)}</span>'
+
+
+class SweepProgressBar(w.HBox):
+    """A progress bar for long runs (sweeps, searches): call it as ``bar(done, total)``.
+
+    >>> bar = SweepProgressBar("sweep")
+    >>> bar(3, 12); bar.bar.value, bar.label.value
+    (3, '3 of 12')
+    """
+
+    def __init__(self, description: str = "progress", **kwargs: Any) -> None:
+        self.bar = w.IntProgress(value=0, min=0, max=1, description=description)
+        self.label = w.Label("")
+        super().__init__([self.bar, self.label], **kwargs)
+
+    def __call__(self, done: int, total: int, message: str = "") -> None:
+        if total < 1 or not 0 <= done <= total:
+            raise ValueError(f"done must be between 0 and total >= 1, not {done!r} of {total!r}")
+        self.bar.max = total
+        self.bar.value = done
+        self.bar.bar_style = "success" if done == total else ""
+        self.label.value = f"{done} of {total}" + (f": {message}" if message else "")

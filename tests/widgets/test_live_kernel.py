@@ -1,0 +1,69 @@
+"""A real Jupyter kernel receiving a burst of slider updates (a drag), as a browser sends them."""
+
+from __future__ import annotations
+
+import json
+import textwrap
+from pathlib import Path
+
+import pytest
+
+jupyter_client = pytest.importorskip("jupyter_client")
+pytest.importorskip("ipykernel")
+
+ROOT = Path(__file__).resolve().parents[2]
+
+SETUP = textwrap.dedent(
+    f"""
+    import sys, json
+    sys.path.insert(0, {str(ROOT)!r})
+    import numpy as np
+    from fxnet_widgets.core.network import Network
+    from fxnet_widgets.core.plan import Plan
+    from fxnet_widgets.widgets import Explorer
+    net = Network.from_layers([([[9.2, -12.4, -2.9], [8.9, -11.6, -3.2], [-9.4, 12.8, 2.8]], [-0.36, -0.36, 0.4],
+                                "sigmoid"), ([[6.1, 5.7, -6.3]], [-2.9], "sigmoid")])
+    plan = Plan.uniform(net, weight_bits=10, weight_frac=5, acc_bits=18, out_bits=8, table_bits=12, table_frac=8)
+    img = np.random.default_rng(0).integers(0, 256, (90, 160, 3)).astype(np.uint8)
+    ex = Explorer(net, image=img, plan=plan)
+    print(json.dumps({{"id": ex.controls.sliders["acc_bits"].model_id, "computed": ex.session.computed}}))
+    """
+)
+REPORT = (
+    "print(json.dumps({'computed': ex.session.computed, 'plan': [lp.acc_bits for lp in ex.plan.layers],"
+    " 'shown': [lp.acc_bits for lp in ex.session.result.plan.layers], 'slider': ex.controls.sliders['acc_bits'].value,"
+    " 'error': ex.session.error}))"
+)
+
+
+def _run(kc, code: str) -> str:
+    msg_id = kc.execute(code)
+    out = []
+    while True:
+        m = kc.get_iopub_msg(timeout=60)
+        if m["parent_header"].get("msg_id") != msg_id:
+            continue
+        if m["msg_type"] == "stream":
+            out.append(m["content"]["text"])
+        elif m["msg_type"] == "error":
+            raise AssertionError("\n".join(m["content"]["traceback"]))
+        elif m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
+            return "".join(out)
+
+
+def test_a_drag_in_a_live_kernel_is_coalesced_and_ends_on_the_last_value():
+    km, kc = jupyter_client.manager.start_new_kernel(kernel_name="python3")
+    try:
+        start = json.loads(_run(kc, SETUP).strip().splitlines()[-1])
+        values = [17, 16, 15, 14, 13, 12, 11, 10, 9, 8] * 2 + [13]
+        for v in values:  # the comm message ipywidgets' front end sends for a moved slider
+            data = {"method": "update", "state": {"value": v}, "buffer_paths": []}
+            kc.shell_channel.send(kc.session.msg("comm_msg", {"comm_id": start["id"], "data": data}))
+        end = json.loads(_run(kc, REPORT).strip().splitlines()[-1])
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)
+    assert end["plan"] == [13, 13] and end["shown"] == [13, 13] and end["slider"] == 13
+    assert end["error"] == ""
+    # latest value wins: far fewer computations than messages (each message alone would be one)
+    assert end["computed"] - start["computed"] < len(values) // 2

@@ -1,0 +1,83 @@
+"""Independent checks of what the views hold against the kernel (shared by the widget tests)."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+from PIL import Image
+
+from fxnet_widgets.core.kernel import emulate
+from fxnet_widgets.render.palette import FIXED_ONLY, FLOAT_ONLY, class_colours
+
+
+def decode_classes(png: bytes, n_classes: int) -> np.ndarray:
+    """Class index of every pixel of a decision-mask PNG (by its colour)."""
+    rgb = np.asarray(Image.open(io.BytesIO(png)).convert("RGB")).astype(np.int64)
+    pal = class_colours(n_classes).astype(np.int64)
+    hit = (rgb[:, :, None, :] == pal[None, None, :, :]).all(axis=-1)
+    assert hit.any(axis=-1).all(), "a mask pixel has no class colour"
+    return hit.argmax(axis=-1)
+
+
+def decode_rgb(png: bytes) -> np.ndarray:
+    return np.asarray(Image.open(io.BytesIO(png)).convert("RGB"))
+
+
+def slice_input(codes: np.ndarray, x_input: int, y_input: int, fixed_input: int, position: int) -> np.ndarray:
+    """The slice grid built here, independently: pixel [iy, ix] = inputs (codes[ix], codes[iy], position)."""
+    n = codes.size
+    grid = np.zeros((n, n, 3), dtype=np.uint8)
+    for iy in range(n):
+        grid[iy, :, x_input] = codes
+        grid[iy, :, y_input] = codes[iy]
+    grid[:, :, fixed_input] = position
+    return grid
+
+
+def assert_explorer_matches_kernel(ex, image_codes: np.ndarray | None = None) -> None:
+    """Every view of an explorer shows exactly what the kernel computes for ``ex.plan``."""
+    s = ex.session
+    net, plan = s.network, s.plan
+    assert s.result.plan == plan
+    n_cls = len(net.classes)
+    emus = []
+    if s.image is not None:
+        codes = s.result.image.codes if image_codes is None else image_codes
+        emu = emulate(net, plan, codes)
+        emus.append(emu)
+        p = ex.preview
+        assert np.array_equal(decode_classes(p.fixed_image.value, n_cls), emu.decisions)
+        assert np.array_equal(decode_classes(p.float_image.value, n_cls), emu.float_decisions)
+        over = decode_rgb(p.overlay_image.value)
+        magenta = (over == np.array(FIXED_ONLY, np.uint8)).all(axis=-1)
+        teal = (over == np.array(FLOAT_ONLY, np.uint8)).all(axis=-1)
+        assert np.array_equal(magenta, (emu.decisions == 1) & (emu.float_decisions == 0))
+        assert np.array_equal(teal, (emu.decisions == 0) & (emu.float_decisions == 1))
+        assert np.array_equal(decode_rgb(p.input_image.value), codes)
+    if s.samples is not None:
+        emus.append(emulate(net, plan, s.samples))
+    for sp in ex.boundary.slices:
+        xi, yi, fi = ((0, 1, 2), (0, 2, 1), (1, 2, 0))[sp.which]
+        pos = s.slice_positions[fi]
+        c = np.arange(0, 256, 2)
+        e = emulate(net, plan, slice_input(c, xi, yi, fi, pos))
+        fx, fl = e.decisions, e.float_decisions
+        # comparison codes (render.comparison_codes): 0/1 agree, 2 only fixed says 1, 3 only float says 1
+        want = np.where(fx == fl, fx, np.where(fx > fl, 2, 3))
+        assert np.array_equal(sp.heatmap.color, want.astype(np.float32))
+        assert sp.heatmap.color.dtype == np.float32
+        assert np.array_equal(sp.heatmap.x, c.astype(np.float32))
+    # event bars: the kernel's counts on the data, summed over image and samples
+    counts = ex.events.counts
+    col = 0
+    for li in range(len(net.layers)):
+        for j in range(net.layers[li].n_out):
+            for row, ev in enumerate(("acc_overflow", "table_low", "table_high")):
+                assert counts[row, col] == sum(int(m.events[li][ev][j]) for m in emus)
+            assert counts[3, col] == int(emus[0].events[li]["weight_clip"][j])
+            col += 1
+    # histograms: every sample counted once per neuron
+    total = sum(m.n for m in emus)
+    for hp in ex.histograms.plots:
+        assert int(hp.neuron.counts.sum()) == total
