@@ -107,6 +107,11 @@ def main() -> None:
     print(f"  local pool, 2 workers:   {rate[2]:7.1f} plans/s{share(2, 2)}")
     print(f"  speed-up 2 vs 1 worker:  {rate[2] / rate[1]:.3f}")
     print(f"  parallel efficiency:     {100 * rate[2] / (2 * rate[1]):.1f} % (target >= 80 %)")
+    c1, c2 = best[1][1], best[2][1]
+    if c1 is not None and c2 is not None:
+        # CPU seconds of one worker over those of two for the same plans: the work that
+        # splitting adds (per-worker set-up), independent of how busy the machine is
+        print(f"  CPU-time efficiency:     {100 * c1 / c2:.1f} % (1-worker CPU / 2-worker CPU for the same plans)")
     print(f"  load average after {load1:.2f} (efficiency is only meaningful on otherwise idle cores)")
 
 

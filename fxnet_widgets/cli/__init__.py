@@ -50,8 +50,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser = build_parser()
         args = parser.parse_args(list(sys.argv[1:] if argv is None else argv))
         if not getattr(args, "func", None):
-            parser.print_help(sys.stderr)
-            return 2
+            raise CliError(f"fxnet: a command is required (one of {', '.join(SUBCOMMANDS)}); see fxnet --help")
         return int(args.func(args) or 0)
 
     return run_guarded(go)

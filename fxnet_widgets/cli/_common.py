@@ -22,16 +22,20 @@ class CliError(Exception):
     """A one-line error for stderr (exit code 2)."""
 
 
+def one_line(text: str) -> str:
+    """``text`` as one line: line breaks inside it (from a file name or argument) are shown escaped."""
+    return text.strip().replace("\r", "\\r").replace("\n", "\\n")
+
+
 def run_guarded(go: Callable[[], int]) -> int:
     """Run ``go``; bad input becomes one line on stderr and exit code 2."""
     try:
         return go()
     except CliError as exc:
-        print(str(exc), file=sys.stderr)
+        print(one_line(str(exc)), file=sys.stderr)
         return 2
     except (TypeError, ValueError, OSError, KeyError) as exc:
-        msg = str(exc).strip().splitlines()
-        print(f"fxnet: {msg[0] if msg else type(exc).__name__}", file=sys.stderr)
+        print(f"fxnet: {one_line(str(exc)) or type(exc).__name__}", file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print("fxnet: interrupted", file=sys.stderr)
