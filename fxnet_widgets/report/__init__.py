@@ -48,12 +48,17 @@ body { font-family: system-ui, -apple-system, "Segoe UI", sans-serif; margin: 24
 h1 { font-size: 1.6em; } h2 { font-size: 1.2em; border-bottom: 1px solid #ccd; padding-bottom: 2px; margin-top: 28px; }
 table { border-collapse: collapse; margin: 8px 0 14px 0; font-size: 13px; }
 th, td { border: 1px solid #ccd; padding: 2px 7px; text-align: right; }
-th { background: #eef0f5; } td:first-child, th:first-child { text-align: left; }
+th { background: #eef0f5; text-align: center; } td:first-child, td.text { text-align: left; }
 caption { text-align: left; font-weight: 600; padding: 2px 0; }
-pre { background: #f6f7f9; padding: 8px; overflow-x: auto; font-size: 12px; }
-.figures { display: flex; flex-wrap: wrap; gap: 12px; }
-figure { margin: 0; } figure img { border: 1px solid #ccd; image-rendering: pixelated; max-width: 100%; }
-figcaption { font-size: 12px; max-width: 480px; }
+td { font-variant-numeric: tabular-nums; white-space: nowrap; }
+pre { background: #f6f7f9; border: 1px solid #e3e6ec; padding: 8px 10px; font-size: 12px; line-height: 1.45;
+      white-space: pre-wrap; overflow-wrap: anywhere; max-width: 100%; box-sizing: border-box; }
+.table-wrap { max-width: 100%; overflow-x: auto; }
+ul.formats { font-size: 13px; font-family: ui-monospace, "DejaVu Sans Mono", monospace; }
+.figures { display: flex; flex-wrap: wrap; gap: 12px; align-items: flex-start; }
+figure { margin: 0; display: table; } figure img { border: 1px solid #ccd; max-width: 100%; display: block; }
+figure.preview img, figure.slice img, figure.cube img { image-rendering: pixelated; }
+figcaption { font-size: 12px; display: table-caption; caption-side: bottom; padding-top: 3px; line-height: 1.35; }
 .legend .swatch { display: inline-block; width: 12px; height: 12px; margin: 0 4px 0 12px; vertical-align: middle; }
 .note { background: #fff8e1; border: 1px solid #f2b705; padding: 8px 12px; font-size: 14px; }
 .note li { margin: 2px 0; }

@@ -12,6 +12,7 @@ from __future__ import annotations
 import base64
 import dataclasses
 import html
+import re
 from collections.abc import Iterable, Sequence
 from typing import Any
 
@@ -32,6 +33,7 @@ from ..render import (
     png_bytes,
     slice_palette,
 )
+from ..render.charts import ACC_RANGE_COLOUR, EVENT_STYLES, NO_EVENTS_TEXT, TABLE_WINDOW_COLOUR
 from ..render.palette import hex_colour
 
 __all__ = ["esc", "table_html", "img_html", "plan_cell", "static_sections", "PLAN_FIELDS"]
@@ -45,17 +47,27 @@ def esc(value: Any) -> str:
     return html.escape(str(value), quote=True)
 
 
+_NUMBER = re.compile(r"^[-+]?(\d+(\.\d*)?|\.\d+)([eE][-+]?\d+)?( %)?$")
+
+
+def _cell(value: Any) -> str:
+    """One escaped ``<td>``; text (not a number) gets ``class="text"`` (left-aligned, numbers align right)."""
+    text = "" if value is None else str(value)
+    cls = "" if _NUMBER.match(text) or not text else ' class="text"'
+    return f"<td{cls}>{esc(text)}</td>"
+
+
 def table_html(
     headers: Sequence[Any], rows: Iterable[Sequence[Any]], *, cls: str, caption: str | None = None
 ) -> str:
     """An HTML table with every cell escaped; ``cls`` names it for readers and tests."""
-    out = [f'<table class="{esc(cls)}">']
+    out = [f'<div class="table-wrap"><table class="{esc(cls)}">']
     if caption:
         out.append(f"<caption>{esc(caption)}</caption>")
     out.append("<thead><tr>" + "".join(f"<th>{esc(h)}</th>" for h in headers) + "</tr></thead><tbody>")
     for row in rows:
-        out.append("<tr>" + "".join(f"<td>{esc('' if v is None else v)}</td>" for v in row) + "</tr>")
-    out.append("</tbody></table>")
+        out.append("<tr>" + "".join(_cell(v) for v in row) + "</tr>")
+    out.append("</tbody></table></div>")
     return "\n".join(out)
 
 
@@ -142,30 +154,54 @@ def _metrics_section(metrics: list[tuple[str, ErrorMetrics]]) -> str:
     return '<section id="metrics"><h2>Metrics</h2>\n' + "\n".join([table, *parts]) + "</section>"
 
 
+def _histogram_figure(nr: Any, data_name: str) -> str:
+    """One neuron's histogram of exact sums in real pre-activation values (``code / 2**acc_frac``)."""
+    real = nr.real
+    table = (float(real(nr.table_edges[0])), float(real(nr.table_edges[1])))
+    acc = (float(real(nr.acc_edges[0])), float(real(nr.acc_edges[1])))
+    edges = real(nr.edges)
+    marks = {"table window": table, "accumulator range": acc}
+    png = histogram_png(
+        edges, nr.counts, marks, title=f"{nr.label}: exact accumulator sums",
+        mark_colours={"table window": TABLE_WINDOW_COLOUR, "accumulator range": ACC_RANGE_COLOUR},
+        x_label=f"pre-activation value (sum code / 2^{nr.acc_frac})",
+    )  # fmt: skip
+    shown = edges[0] <= acc[0] and acc[1] <= edges[-1]
+    caption = (
+        f"{nr.label} on {data_name}: sums {real(nr.observed_min):.6g} .. {real(nr.observed_max):.6g}; "
+        f"table window {table[0]:.6g} .. {table[1]:.6g} (teal dashes); accumulator range "
+        f"{acc[0]:.6g} .. {acc[1]:.6g} ({'red dashes' if shown else 'off scale'}"
+        f"{'; the same as the table window' if acc == table else ''}); what lies outside is cut off"
+    )
+    alt = (f"histogram {nr.label}: table window {table[0]:.6g} .. {table[1]:.6g}, accumulator range "
+           f"{acc[0]:.6g} .. {acc[1]:.6g}")  # fmt: skip
+    return img_html(png, alt, caption, cls="histogram")
+
+
 def _events_section(result: Any) -> tuple[str, list[str]]:
     rows = []
     for nr in result.neurons:
         rows.append([nr.label, *(nr.events[k] for k in EVENT_NAMES), nr.safe_acc_bits, nr.observed_min,
-                     nr.observed_max])  # fmt: skip
+                     nr.observed_max, str(float(nr.real(nr.observed_min))),
+                     str(float(nr.real(nr.observed_max)))])  # fmt: skip
     table = table_html(
-        ["neuron", *EVENT_NAMES, "safe accumulator (b)", "smallest sum (LSB)", "largest sum (LSB)"], rows,
+        ["neuron", *EVENT_NAMES, "safe accumulator (b)", "smallest sum (LSB)", "largest sum (LSB)",
+         "smallest value", "largest value"], rows,
         cls="events", caption=f"events on {result.data_name}",
     )  # fmt: skip
     figs = []
     labels = [nr.label for nr in result.neurons]
-    series = {k: [nr.events[k] for nr in result.neurons] for k in ("acc_overflow", "table_low", "table_high",
-                                                                   "weight_clip")}  # fmt: skip
-    figs.append(img_html(bar_chart_png(labels, series, title="events per neuron (log count)"), "events per neuron",
-                         "events per neuron (log count axis)", cls="events-chart"))  # fmt: skip
+    series = {text: [nr.events[k] for nr in result.neurons] for k, (text, _) in EVENT_STYLES.items()}
+    colours = [c for _, c in EVENT_STYLES.values()]
+    quiet = not any(any(v) for v in series.values())
+    chart = bar_chart_png(labels, series, title="events per neuron", colours=colours)
+    caption = (f"events per neuron on {result.data_name}: none (every count is 0)" if quiet
+               else f"events per neuron on {result.data_name} (log count axis)")  # fmt: skip
+    kinds = ", ".join(f"{text} {sum(v)}" for text, v in series.items())
+    alt = f"events per neuron: {NO_EVENTS_TEXT} ({kinds})" if quiet else f"events per neuron, in total: {kinds}"
+    figs.append(img_html(chart, alt, caption, cls="events-chart" + (" no-events" if quiet else "")))
     for nr in result.neurons:
-        marks = {"table lo": nr.table_edges[0], "table hi": nr.table_edges[1]}
-        span = float(max(nr.edges[-1], nr.table_edges[1]) - min(nr.edges[0], nr.table_edges[0]))
-        if nr.acc_edges[1] - nr.acc_edges[0] <= 4 * span:
-            marks.update({"acc min": nr.acc_edges[0], "acc max": nr.acc_edges[1]})
-        png = histogram_png(nr.edges, nr.counts, marks, title=f"{nr.label}: exact sums (accumulator LSBs)")
-        figs.append(img_html(png, f"histogram {nr.label}",
-                             f"{nr.label}: histogram of exact accumulator sums on {result.data_name}, with the "
-                             f"table window and accumulator range marked", cls="histogram"))  # fmt: skip
+        figs.append(_histogram_figure(nr, result.data_name))
     return f'<section id="events"><h2>Overflow and clamps</h2>\n{table}</section>', figs
 
 
