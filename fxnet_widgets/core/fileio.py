@@ -53,11 +53,15 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
 
     The temporary file lives in the target's directory (so the rename is atomic
     on POSIX). On any exception the temporary file is removed and the old
-    target, if any, is untouched.
+    target, if any, is untouched. A process killed mid-way (SIGKILL, power
+    loss) cannot remove its temporary file; its name carries the writer's
+    process id, and the next write of the same target removes it once that
+    process is gone.
     """
     path = Path(path)
     directory = path.parent if str(path.parent) else Path(".")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
+    _remove_stale_temporaries(directory, path.name)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp", dir=directory)
     try:
         os.fchmod(fd, 0o666 & ~_umask())  # the permissions an ordinary open() would give
         with os.fdopen(fd, mode) as fh:
@@ -72,6 +76,35 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
             pass
         raise
     return path
+
+
+def _remove_stale_temporaries(directory: Path, name: str) -> None:
+    """Remove ``.<name>.<pid>.*.tmp`` files left by writers that no longer run."""
+    if os.name != "posix":  # os.kill(pid, 0) only probes on POSIX (on Windows it terminates)
+        return
+    prefix = f".{name}."
+    try:
+        entries = [e for e in os.listdir(directory) if e.startswith(prefix) and e.endswith(".tmp")]
+    except OSError:
+        return
+    for entry in entries:
+        pid = entry[len(prefix):].split(".", 1)[0]
+        if not pid.isdigit() or int(pid) == os.getpid() or _process_alive(int(pid)):
+            continue
+        try:
+            os.unlink(directory / entry)
+        except OSError:
+            pass
+
+
+def _process_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except (PermissionError, OverflowError, OSError):
+        return True  # someone else's process, or a number we cannot check: leave its file alone
+    return True
 
 
 def _umask() -> int:

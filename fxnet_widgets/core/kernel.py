@@ -301,14 +301,16 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
                 " before quantising"
             )
         # 1. weights
-        qw_f = round_float(_scaled(w, lp.weight_frac), lp.weight_round)  # an overflow to inf is clamped
+        with np.errstate(invalid="ignore"):  # inf (an overflow) rounds to inf and is clamped: weight_clip
+            qw_f = round_float(_scaled(w, lp.weight_frac), lp.weight_round)
         wlo, whi = signed_range(lp.weight_bits)
         clipped = (qw_f < wlo) | (qw_f > whi)
         q_w = np.clip(qw_f, wlo, whi).astype(np.int64)
         weight_clip = clipped.sum(axis=1).astype(np.int64)
         # 2. bias (aligned to the product's scale)
         acc_frac = in_frac + lp.weight_frac
-        qb_f = round_float(_scaled(np.asarray(L.bias, dtype=np.float64), acc_frac), lp.weight_round)
+        with np.errstate(invalid="ignore"):
+            qb_f = round_float(_scaled(np.asarray(L.bias, dtype=np.float64), acc_frac), lp.weight_round)
         # beyond float64 the product is an exact integer (b is then an integer and acc_frac > 0)
         q_b_raw = [int(v) if math.isfinite(v) else int(b) << acc_frac for v, b in zip(qb_f.tolist(), L.bias.tolist())]
         alo, ahi = signed_range(lp.acc_bits)

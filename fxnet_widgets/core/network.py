@@ -32,6 +32,8 @@ __all__ = ["ACTIVATIONS", "Layer", "Network", "as_codes", "activate"]
 ACTIVATIONS = ("sigmoid", "tanh", "relu", "identity")
 SCALES = ("pow2", "full")
 MAX_FAN_IN = 4096
+#: rows per block of :meth:`Network.predict` (bounds its temporaries; results do not depend on it)
+PREDICT_ROWS = 1 << 16
 _NETWORK_KEYS = {"kind", "version", "input", "layers", "output"}
 _INPUT_KEYS = {"names", "bits", "scale"}
 _LAYER_KEYS = {"weights", "bias", "activation"}
@@ -240,7 +242,9 @@ class Network:
                 raise TypeError(f"{where} must be an object, not {_short(ld)}")
             unknown = sorted(set(ld) - _LAYER_KEYS, key=str)
             if unknown:
-                raise ValueError(f"{where}.{key_text(unknown[0])} is not a layer key (known: activation, bias, weights)")
+                raise ValueError(
+                    f"{where}.{key_text(unknown[0])} is not a layer key (known: activation, bias, weights)"
+                )
             for key in ("weights", "bias", "activation"):
                 if key not in ld:
                     raise ValueError(f"{where}.{key} is missing")
@@ -360,10 +364,16 @@ class Network:
     def predict(self, codes: Any) -> np.ndarray:
         """Float64 outputs for unsigned input codes (N x n_in, or an image).
 
-        Image input (H x W x n_in) gives H x W x n_out.
+        Image input (H x W x n_in) gives H x W x n_out. Rows are computed in
+        blocks of :data:`PREDICT_ROWS`, so a 4K frame needs memory for its
+        outputs and one block of temporaries, not for a dozen full-size ones.
         """
         flat, shape = as_codes(codes, self.input_bits, self.n_in)
-        out = self.forward(flat.astype(np.float64) * self.input_factor())[-1]
+        out = np.empty((flat.shape[0], self.n_out), dtype=np.float64)
+        factor = self.input_factor()
+        for start in range(0, flat.shape[0], PREDICT_ROWS):
+            block = flat[start : start + PREDICT_ROWS]
+            out[start : start + PREDICT_ROWS] = self.forward(block.astype(np.float64) * factor)[-1]
         return out if shape is None else out.reshape(*shape, self.n_out)
 
     def forward(self, x: np.ndarray) -> list[np.ndarray]:
