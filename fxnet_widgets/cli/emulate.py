@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import argparse
-import io
 
 import numpy as np
 
-from ..core.fileio import atomic_write_bytes
+from ..core.fileio import atomic_writer
 from ..core.kernel import emulate
 from ._common import check_output_path, load_input, load_network, load_plan, print_json
 
@@ -28,9 +27,8 @@ def run(args: argparse.Namespace) -> int:
     codes, note = load_input(args.input, net)
     out = check_output_path(args.output, ".npz")
     result = emulate(net, plan, codes)
-    buf = io.BytesIO()
-    np.savez(buf, **result.npz_arrays())
-    atomic_write_bytes(out, buf.getvalue())
+    arrays = result.npz_arrays()
+    atomic_writer(out, lambda fh: np.savez(fh, **arrays))  # streamed: no second copy in memory
     summary = result.summary_dict()
     summary["input"] = {"file": args.input, "note": note}
     summary["output"] = out

@@ -16,6 +16,7 @@ import json
 import math
 import os
 import re
+import shutil
 import tempfile
 import tokenize
 import zipfile
@@ -60,7 +61,7 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
     """
     path = Path(path)
     directory = path.parent if str(path.parent) else Path(".")
-    _remove_stale_temporaries(directory, path.name)
+    remove_stale_temporaries(directory, path.name)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp", dir=directory)
     try:
         os.fchmod(fd, 0o666 & ~_umask())  # the permissions an ordinary open() would give
@@ -78,21 +79,25 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
     return path
 
 
-def _remove_stale_temporaries(directory: Path, name: str) -> None:
-    """Remove ``.<name>.<pid>.*.tmp`` files left by writers that no longer run."""
+def remove_stale_temporaries(directory: Path, name: str, suffix: str = ".tmp") -> None:
+    """Remove ``.<name>.<pid>.*<suffix>`` files or folders left by writers that no longer run."""
     if os.name != "posix":  # os.kill(pid, 0) only probes on POSIX (on Windows it terminates)
         return
     prefix = f".{name}."
     try:
-        entries = [e for e in os.listdir(directory) if e.startswith(prefix) and e.endswith(".tmp")]
+        entries = [e for e in os.listdir(directory) if e.startswith(prefix) and e.endswith(suffix)]
     except OSError:
         return
     for entry in entries:
         pid = entry[len(prefix):].split(".", 1)[0]
         if not pid.isdigit() or int(pid) == os.getpid() or _process_alive(int(pid)):
             continue
+        path = Path(directory) / entry
         try:
-            os.unlink(directory / entry)
+            if path.is_dir() and not path.is_symlink():
+                shutil.rmtree(path)
+            else:
+                os.unlink(path)
         except OSError:
             pass
 

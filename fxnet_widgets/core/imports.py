@@ -43,6 +43,7 @@ Examples
 from __future__ import annotations
 
 import io
+import math
 import os
 import re
 import zipfile
@@ -211,16 +212,45 @@ def _str(arr: np.ndarray, key: str, name: str) -> str:
     return str(arr)
 
 
+MAX_NPZ_BYTES = 256 * 1024 * 1024
+
+
+def _check_npz_sizes(name: str) -> None:
+    """Refuse an archive whose members declare more data than they hold (or than the bound)."""
+    if not zipfile.is_zipfile(name):
+        return
+    with zipfile.ZipFile(name) as zf:
+        total = 0
+        for info in zf.infolist():
+            total += info.file_size
+            if total > MAX_NPZ_BYTES:
+                raise ValueError(f"the archive unpacks to more than {MAX_NPZ_BYTES} bytes")
+            if not info.filename.endswith(".npy"):
+                continue
+            with zf.open(info) as fh:
+                version = np.lib.format.read_magic(fh)
+                if version == (1, 0):
+                    shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
+                elif version == (2, 0):
+                    shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+                else:
+                    continue
+            need = math.prod(shape) * dtype.itemsize
+            if need > info.file_size:
+                raise ValueError(f"member {info.filename} declares {need} bytes but holds {info.file_size}")
+
+
 def load_npz(path: str | os.PathLike[str]) -> Network:
     """Read a network from an ``.npz`` of arrays (keys in the module text; no pickle)."""
     name = os.fspath(path)
     try:
+        _check_npz_sizes(name)
         archive = np.load(name, allow_pickle=False)
     except FileNotFoundError:
         raise FileFormatError(f"{name}: no such file") from None
     except IsADirectoryError:
         raise FileFormatError(f"{name}: is a directory, not a file") from None
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile, NotImplementedError, MemoryError, SyntaxError) as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise FileFormatError(f"{name}: not a readable .npz archive ({msg})") from None
     if isinstance(archive, np.ndarray):
@@ -228,7 +258,7 @@ def load_npz(path: str | os.PathLike[str]) -> Network:
     try:
         with archive:
             arrays = {k: archive[k] for k in archive.files}
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile) as exc:
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile, NotImplementedError, MemoryError, SyntaxError) as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise FileFormatError(f"{name}: broken .npz archive ({msg})") from None
     layers: dict[int, dict[str, np.ndarray]] = {}
@@ -263,7 +293,7 @@ def load_npz(path: str | os.PathLike[str]) -> Network:
         if "input_bits" in arrays:
             a = arrays["input_bits"]
             if a.ndim != 0 or a.dtype.kind not in "iu":
-                raise FileFormatError(f"{name}: input_bits must be an integer, not {a.dtype}")
+                raise FileFormatError(f"{name}: input_bits must be one integer, not {a.dtype} of shape {a.shape}")
             opts["input_bits"] = int(a)
         if "input_scale" in arrays:
             scale = _str(arrays["input_scale"], "input_scale", name)

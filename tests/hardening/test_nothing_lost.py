@@ -166,6 +166,9 @@ def test_killed_export_keeps_old_directory(tmp_path):
                    tmp_path)  # fmt: skip
     after = {p.relative_to(target): p.read_bytes() for p in target.rglob("*") if p.is_file()}
     assert after == before
+    assert len(temporaries(tmp_path)) == 1  # the killed writer's .hdl.<pid>.*.partial
+    export(NET, NEW_PLAN, target, force=True)  # the next export of the same directory removes it
+    assert temporaries(tmp_path) == []
 
 
 def test_killed_report_keeps_old_report(tmp_path):

@@ -17,6 +17,8 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
+from ..fileio import remove_stale_temporaries
+
 __all__ = ["write_directory"]
 
 
@@ -50,7 +52,8 @@ def write_directory(target: str | os.PathLike[str], build: Callable[[Path], None
             raise ValueError(f"{name}: must be a directory, not a file")
         if any(target.iterdir()) and not force:
             raise FileExistsError(f"{name}: the directory is not empty (use force=True or --force to replace it)")
-    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.", suffix=".partial", dir=parent))
+    remove_stale_temporaries(parent, target.name, ".partial")  # left by a writer that was killed
+    tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".partial", dir=parent))
     try:
         build(tmp)
         os.chmod(tmp, 0o777 & ~_umask())
