@@ -15,6 +15,8 @@ __all__ = [
     "FIXED_ONLY",
     "FLOAT_ONLY",
     "DISAGREE",
+    "MARK_INNER",
+    "MARK_OUTER",
     "class_colours",
     "slice_palette",
     "hex_colour",
@@ -25,6 +27,8 @@ AGREE_POSITIVE = (242, 183, 5)  # amber: both say "target" (ripe fruit)
 FIXED_ONLY = (214, 45, 123)  # magenta: fixed point says target, float does not
 FLOAT_ONLY = (26, 170, 190)  # teal: float says target, fixed point does not
 DISAGREE = (214, 45, 123)  # several classes: any disagreement
+MARK_INNER = (255, 255, 255)  # white: ring drawn around a disagreeing pixel (inside)
+MARK_OUTER = (0, 0, 0)  # black: edge of that ring (visible on light and dark backgrounds alike)
 _EXTRA = [
     (87, 148, 74),
     (122, 90, 200),

@@ -20,7 +20,7 @@ from typing import Any
 import numpy as np
 from PIL import Image
 
-from .palette import FIXED_ONLY, FLOAT_ONLY, class_colours
+from .palette import FIXED_ONLY, FLOAT_ONLY, MARK_INNER, MARK_OUTER, class_colours
 
 __all__ = [
     "MAX_PREVIEW_WIDTH",
@@ -28,6 +28,8 @@ __all__ = [
     "comparison_codes",
     "decision_mask_png",
     "downscale",
+    "MAX_RINGED",
+    "ring_mask",
     "overlay_png",
     "palette_png",
     "png_bytes",
@@ -36,6 +38,8 @@ __all__ = [
 #: widest live preview (pixels); wider images are subsampled by a whole factor
 MAX_PREVIEW_WIDTH = 640
 _GREY_LEVELS = 64  # overlay background: dimmed luminance in this many palette steps
+#: with at most this many disagreeing pixels the overlay can ring each one (more are visible anyway)
+MAX_RINGED = 500
 
 
 def _check_level(compress_level: Any) -> int:
@@ -103,11 +107,52 @@ def comparison_codes(fixed: Any, float_: Any, n_classes: int) -> np.ndarray:
     return out.astype(np.uint8)
 
 
-def overlay_png(codes: Any, fixed: Any, float_: Any, n_classes: int = 2, compress_level: int = 1) -> bytes:
+def ring_mask(points: Any, shape: tuple[int, int], radius: int, width: int = 2) -> np.ndarray:
+    """Boolean H x W mask of rings (annuli ``radius - width < d <= radius``) around ``points``.
+
+    ``points`` is a boolean H x W mask or an (n, 2) array of (row, column); the
+    rings are clipped at the border.
+
+    >>> ring_mask(np.array([[2, 2]]), (5, 5), 2, 1).astype(int)[2].tolist()
+    [1, 0, 0, 0, 1]
+    """
+    h, w = (int(v) for v in shape)
+    if not isinstance(radius, (int, np.integer)) or radius < 1:
+        raise ValueError(f"radius must be a positive integer, not {radius!r}")
+    if not isinstance(width, (int, np.integer)) or not 1 <= width <= radius:
+        raise ValueError(f"width must be an integer between 1 and radius {radius}, not {width!r}")
+    pts = np.asarray(points)
+    if pts.dtype == np.bool_:
+        if pts.shape != (h, w):
+            raise ValueError(f"points mask must have shape {(h, w)}, not {pts.shape}")
+        pts = np.argwhere(pts)
+    pts = pts.reshape(-1, 2).astype(np.int64)
+    r = int(radius)
+    dy, dx = np.mgrid[-r : r + 1, -r : r + 1]
+    d2 = dy * dy + dx * dx
+    keep = (d2 <= r * r) & (d2 > (r - int(width)) ** 2)
+    dy, dx = dy[keep], dx[keep]
+    ys = (pts[:, 0:1] + dy[None, :]).ravel()
+    xs = (pts[:, 1:2] + dx[None, :]).ravel()
+    ok = (ys >= 0) & (ys < h) & (xs >= 0) & (xs < w)
+    out = np.zeros((h, w), dtype=bool)
+    out[ys[ok], xs[ok]] = True
+    return out
+
+
+def overlay_png(
+    codes: Any, fixed: Any, float_: Any, n_classes: int = 2, compress_level: int = 1, *, rings: bool = False
+) -> bytes:
     """The input dimmed to grey with the disagreeing pixels coloured.
 
     Magenta: only the fixed-point network says target (or, with several
     classes, any disagreement); teal: only the float network says target.
+
+    With ``rings`` and at most :data:`MAX_RINGED` disagreeing pixels, each one
+    is also circled (white ring edged in black, radius about 1/40 of the
+    width) so that a handful of pixels in a large picture can be found. Rings
+    cover agreeing pixels only: every magenta and teal pixel is still exactly
+    a disagreement, and every disagreement is still magenta or teal.
     """
     img = np.asarray(codes)
     fx = np.asarray(fixed)
@@ -121,11 +166,23 @@ def overlay_png(codes: Any, fixed: Any, float_: Any, n_classes: int = 2, compres
         img[..., 0].astype(np.uint32) * 299 + img[..., 1].astype(np.uint32) * 587 + img[..., 2].astype(np.uint32) * 114
     )
     idx = (lum * _GREY_LEVELS // (1000 * 256)).astype(np.uint8)
-    idx[fx != fl] = _GREY_LEVELS
+    differ = fx != fl
+    if rings:
+        n = int(np.count_nonzero(differ))
+        if 0 < n <= MAX_RINGED:
+            h, w = differ.shape
+            radius = max(3, round(max(h, w) / 40))
+            pts = np.argwhere(differ)
+            outer = ring_mask(pts, (h, w), radius + 1, 1)
+            inner = ring_mask(pts, (h, w), radius, max(1, radius // 4))
+            idx[outer & ~differ] = _GREY_LEVELS + 3
+            idx[inner & ~differ] = _GREY_LEVELS + 2
+    idx[differ] = _GREY_LEVELS
     if n_classes == 2:
         idx[(fx == 0) & (fl == 1)] = _GREY_LEVELS + 1
     grey = (np.arange(_GREY_LEVELS, dtype=np.uint32) * 150 // (_GREY_LEVELS - 1) + 40).astype(np.uint8)
-    pal = np.vstack([np.repeat(grey[:, None], 3, axis=1), np.array([FIXED_ONLY, FLOAT_ONLY], dtype=np.uint8)])
+    marks = np.array([FIXED_ONLY, FLOAT_ONLY, MARK_INNER, MARK_OUTER], dtype=np.uint8)
+    pal = np.vstack([np.repeat(grey[:, None], 3, axis=1), marks])
     return palette_png(idx, pal, compress_level)
 
 

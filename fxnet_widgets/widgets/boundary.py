@@ -40,11 +40,52 @@ def _legend(classes: tuple[str, ...]) -> str:
     else:
         names = [f"both {c}" for c in classes] + ["they disagree"]
     items = [
-        f'<span style="display:inline-block;width:12px;height:12px;background:{hex_colour(c)};'
-        f'margin:0 4px 0 10px;vertical-align:middle"></span>{html.escape(n)}'
+        f'<span style="white-space:nowrap;margin-right:14px"><span style="display:inline-block;width:12px;'
+        f'height:12px;background:{hex_colour(c)};margin-right:4px;vertical-align:middle;border:1px solid #999">'
+        f"</span>{html.escape(n)}</span>"
         for c, n in zip(pal, names)
     ]
-    return "<div style='font-size:12px'>" + "".join(items) + "</div>"
+    cols = class_colours(len(classes))
+    dots = [
+        f'<span style="white-space:nowrap;margin-right:14px">{_marker_svg(_marker(i), cols[i])}&nbsp;'
+        f"labelled {html.escape(c)}</span>"
+        for i, c in enumerate(classes)
+    ]
+    return (
+        "<div style='font-size:12px;line-height:20px;display:flex;flex-wrap:wrap'>" + "".join(items) + "</div>"
+        "<div style='font-size:12px;line-height:20px;display:flex;flex-wrap:wrap;align-items:center'>"
+        "<span style='margin-right:10px'>samples near each slice:</span>" + "".join(dots) + "</div>"
+    )
+
+
+def _marker_svg(marker: str, rgb: Any) -> str:
+    """A 12 px picture of a sample marker (fill and outline as on the slices) for the legend."""
+    shapes = {
+        "circle": "<circle cx='6' cy='6' r='4.5'/>",
+        "diamond": "<polygon points='6,0.8 11.2,6 6,11.2 0.8,6'/>",
+        "square": "<rect x='1.5' y='1.5' width='9' height='9'/>",
+        "triangle-up": "<polygon points='6,1 11,11 1,11'/>",
+        "triangle-down": "<polygon points='1,1 11,1 6,11'/>",
+    }
+    shape = shapes.get(marker, "<polygon points='6,0.8 11.2,6 6,11.2 0.8,6'/>")
+    return (
+        f"<svg width='12' height='12' style='vertical-align:middle;background:#888'>"
+        f"<g fill='{hex_colour(rgb)}' stroke='{_outline(rgb)}' stroke-width='1.5'>{shape}</g></svg>"
+    )
+
+
+#: one marker shape per class, so that classes differ by shape as well as colour
+_MARKERS = ("circle", "diamond", "square", "triangle-up", "triangle-down")
+
+
+def _marker(cls: int) -> str:
+    return _MARKERS[cls % len(_MARKERS)]
+
+
+def _outline(rgb: Any) -> str:
+    """Black around a light fill, white around a dark one (ITU-R BT.601 luma), so a dot shows on any cell."""
+    r, g, b = (int(v) for v in rgb)
+    return "#000000" if (299 * r + 587 * g + 114 * b) // 1000 >= 128 else "#ffffff"
 
 
 class SlicePlot(w.VBox):
@@ -65,8 +106,11 @@ class SlicePlot(w.VBox):
         ``color[iy, ix]`` (float32) is the value shown at (``x[ix]``, ``y[iy]``):
         :func:`~fxnet_widgets.render.comparison_codes` of the fixed and float
         decisions, or one decision (see ``mode``).
-    points : bqplot.Scatter
-        Samples within a few codes of the slice, coloured by label.
+    points : list of bqplot.Scatter
+        Per class, the samples within a few codes of the slice with that label
+        (or, without labels, that fixed-point decision): one marker shape per
+        class, filled with the class colour and outlined in black or white,
+        whichever contrasts with the fill.
     position : ipywidgets.IntSlider
         The third input's code (linked to the session's slice trait).
     """
@@ -98,30 +142,32 @@ class SlicePlot(w.VBox):
             color=np.zeros((c.size, c.size), np.float32),
             scales={"x": self.xs, "y": self.ys, "color": self.cs},
         )
-        self.class_scale = bq.ColorScale(colors=[hex_colour(c) for c in class_colours(n_cls)], min=0.0,
-                                         max=float(n_cls - 1))  # fmt: skip
-        self.points = bq.Scatter(
-            x=np.zeros(0, np.float32), y=np.zeros(0, np.float32), color=np.zeros(0, np.float32),
-            scales={"x": self.xs, "y": self.ys, "color": self.class_scale}, stroke="white",
-            default_size=24, marker="circle",
-        )  # fmt: skip
+        self.points = [
+            bq.Scatter(
+                x=np.zeros(0, np.float32), y=np.zeros(0, np.float32), scales={"x": self.xs, "y": self.ys},
+                colors=[hex_colour(col)], stroke=_outline(col), stroke_width=1.5, default_size=40,
+                marker=_marker(k), opacities=[0.95],
+            )
+            for k, col in enumerate(class_colours(n_cls))
+        ]  # fmt: skip
         ticks = np.array([0, hi * 0.25, hi * 0.5, hi * 0.75, hi], dtype=np.float32).round()
         ax_x = bq.Axis(scale=self.xs, label=names[xi], tick_values=ticks, tick_format="d")
         ax_y = bq.Axis(scale=self.ys, label=names[yi], side="left", tick_values=ticks, tick_format="d")
         self.figure = bq.Figure(
-            marks=[self.heatmap, self.points], axes=[ax_x, ax_y], title=name,
+            marks=[self.heatmap, *self.points], axes=[ax_x, ax_y], title=name,
             fig_margin={"top": 30, "bottom": 40, "left": 45, "right": 10},
             layout=w.Layout(width=f"{size}px", height=f"{size}px"), padding_x=0, padding_y=0,
         )  # fmt: skip
         trait = _POSITION_TRAIT[fi]
         self.position = w.IntSlider(
             value=getattr(session, trait), min=0, max=int(hi), description=f"{names[fi]} code",
-            continuous_update=True, layout=w.Layout(width=f"{size}px"),
+            continuous_update=True, layout=w.Layout(width=f"{size}px"), style={"description_width": "80px"},
         )  # fmt: skip
         self._trait = trait
         self.position.observe(self._moved, names="value")
         session.observe(lambda c: setattr(self.position, "value", c["new"]), names=trait)
         self.caption = w.HTML(layout=w.Layout(width=f"{size}px"))
+        kwargs.setdefault("layout", w.Layout(width=f"{size}px", flex="0 0 auto", margin="0 10px 8px 0"))
         super().__init__([self.figure, self.position, self.caption], **kwargs)
         self._last: Any = None
         self.observe(lambda _c: self._draw(self.session.result, force=True), names="mode")
@@ -156,14 +202,14 @@ class SlicePlot(w.VBox):
             self.heatmap.x = sl.x.astype(np.float32)
             self.heatmap.y = sl.y.astype(np.float32)
             self.heatmap.color = color
-        with self.points.hold_sync():
-            self.points.x = sl.points_x.astype(np.float32)
-            self.points.y = sl.points_y.astype(np.float32)
-            self.points.color = sl.points_class.astype(np.float32)
+        for k, mark in enumerate(self.points):
+            mine = sl.points_class == k
+            with mark.hold_sync():
+                mark.x = sl.points_x[mine].astype(np.float32)
+                mark.y = sl.points_y[mine].astype(np.float32)
         self.caption.value = (
             f"<span style='font-size:12px'>{sl.mismatch} of {sl.fixed.size} grid points differ; "
-            f"{sl.points_x.size} labelled samples within {sl.tolerance} codes (dots, filled with their label's colour)"
-            "</span>"
+            f"{sl.points_x.size} samples within {sl.tolerance} codes</span>"
         )
 
 
@@ -173,11 +219,13 @@ class BoundaryPanel(w.VBox):
     def __init__(self, session: Session, size: int = 300, **kwargs: Any) -> None:
         self.session = session
         self.slices = [SlicePlot(session, i, size) for i in range(3)]
-        self.mode = w.ToggleButtons(options=list(MODES), value=MODES[0], description="show")
+        self.mode = w.ToggleButtons(options=list(MODES), value=MODES[0], description="show",
+                                    style={"button_width": "110px", "description_width": "40px"})  # fmt: skip
         for sp in self.slices:
             t.link((self.mode, "value"), (sp, "mode"))
         self.legend = w.HTML(_legend(tuple(session.network.classes)))
-        super().__init__([w.HBox([self.mode, self.legend]), w.HBox(self.slices)], **kwargs)
+        row = w.HBox(self.slices, layout=w.Layout(flex_flow="row wrap", align_items="flex-start"))
+        super().__init__([self.mode, self.legend, row], **kwargs)
 
 
 class CubePanel(w.VBox):
@@ -192,6 +240,8 @@ class CubePanel(w.VBox):
         self.size = size
         self.image = w.Image(format="png", layout=w.Layout(width=f"{size}px", height=f"{size}px"))
         self.caption = w.HTML()
+        self.caption.layout = w.Layout(width=f"{size}px")
+        kwargs.setdefault("layout", w.Layout(flex="0 0 auto"))
         super().__init__([w.HTML("<b>whole RGB cube: where they differ</b>"), self.image, self.caption], **kwargs)
         self._last: Any = None
         session.add_view("cube", self._draw)

@@ -10,6 +10,7 @@ controls follow it, so controls and plan always agree.
 from __future__ import annotations
 
 import contextlib
+from collections.abc import Iterator
 from typing import Any
 
 import ipywidgets as w
@@ -71,6 +72,7 @@ class PlanControlsPanel(w.VBox):
         self.session = session
         net = session.network
         self._syncing = False
+        self._front = 0  # > 0 while a change from the browser is applied
         options: list[tuple[str, int]] = [("all layers", -1)]
         for i, L in enumerate(net.layers):
             options.append((f"layer {i + 1} ({L.activation}, {L.n_in}->{L.n_out})", i))
@@ -92,7 +94,7 @@ class PlanControlsPanel(w.VBox):
             self.sliders[name], self.boxes[name] = s, box
             row: list[w.Widget] = [s, box]
             if name == "acc_bits":
-                self.safe_label = w.HTML(layout=w.Layout(width="170px"))
+                self.safe_label = w.HTML(layout=w.Layout(width="230px", overflow="hidden"))
                 self.safe_button = w.Button(
                     description="safe", tooltip="set the guaranteed-safe accumulator width (no overflow for any input)",
                     layout=w.Layout(width="60px"),
@@ -153,26 +155,48 @@ class PlanControlsPanel(w.VBox):
         if plan != self.session.plan:
             self.session.plan = plan
 
+    @staticmethod
+    def _is_from_browser(change: Any) -> bool:
+        """Whether a change came from the front end (ipywidgets applies those under a property lock;
+        a dropdown's front end sends ``index``, a slider's ``value``)."""
+        return bool(change["owner"]._property_lock)
+
     def _from_browser(self, change: Any) -> Any:
         """Defer the session's work for a change that came from the front end (coalescing)."""
-        # ipywidgets applies front-end updates under the widget's property lock
-        return self.session.deferred() if change["owner"]._property_lock else contextlib.nullcontext()
+        return self.session.deferred() if self._is_from_browser(change) else contextlib.nullcontext()
+
+    @contextlib.contextmanager
+    def _browser_change(self) -> Iterator[None]:
+        """While a front-end change is applied, the controls write no control value back.
+
+        The browser already shows the value (and the ``jslink`` moved the partner
+        widget there); a value written from Python now could reach the browser
+        after a newer one and the link would copy it back onto the slider.
+        """
+        self._front += 1
+        try:
+            yield
+        finally:
+            self._front -= 1
 
     def _slider_moved(self, change: Any) -> None:
         if self._syncing:
             return
         name = next(k for k, s in self.sliders.items() if s is change["owner"])
-        if self.boxes[name].value != change["new"]:
-            self._syncing = True
-            try:
-                self.boxes[name].value = change["new"]
-            finally:
-                self._syncing = False
-        with self._from_browser(change):
-            self.set_field(name, int(change["new"]))
+        if self._is_from_browser(change):
+            # the jslink moved the number box in the browser: never write it from here
+            with self._browser_change(), self._from_browser(change):
+                self.set_field(name, int(change["new"]))
+            return
+        # set from code: keep the box with it (both in one sync), then the plan
+        self._write(name, int(change["new"]))
+        self.set_field(name, int(change["new"]))
 
     def _box_typed(self, change: Any) -> None:
         if self._syncing:
+            return
+        if self._is_from_browser(change):
+            # the jslink moves the slider in the browser, and the slider's own update drives the plan
             return
         name = next(k for k, b in self.boxes.items() if b is change["owner"])
         lo, hi = INT_LIMITS[name]
@@ -181,26 +205,40 @@ class PlanControlsPanel(w.VBox):
             self.session.error = f"{SLIDER_FIELDS[name][0]} must be between {lo} and {hi}, not {v}"
             self._pull()
             return
-        s = self.sliders[name]
-        self._syncing = True
-        try:
-            s.min, s.max = min(s.min, v), max(s.max, v)
-            s.value = v
-        finally:
-            self._syncing = False
-        with self._from_browser(change):
-            self.set_field(name, v)
+        self._write(name, v)
+        self.set_field(name, v)
 
     def _choice_changed(self, change: Any) -> None:
         if self._syncing:
             return
         name = next(k for k, d in self.choices.items() if d is change["owner"])
-        with self._from_browser(change):
-            self.set_field(name, change["new"])
+        if self._is_from_browser(change):
+            with self._browser_change(), self._from_browser(change):
+                self.set_field(name, change["new"])
+            return
+        self.set_field(name, change["new"])
 
     # -- plan -> controls --------------------------------------------------------------
+    def _write(self, name: str, v: int) -> None:
+        """Show ``v`` on the slider and its number box together (one sync each, same value)."""
+        s, box = self.sliders[name], self.boxes[name]
+        was, self._syncing = self._syncing, True
+        try:
+            with s.hold_sync(), box.hold_sync():
+                s.min, s.max = min(s.min, v), max(s.max, v)
+                s.value = v
+                box.value = v
+        finally:
+            self._syncing = was
+
     def _pull(self) -> None:
-        """Show the session plan's values for the chosen layer(s)."""
+        """Show the session plan's values for the chosen layer(s).
+
+        Skipped while a change from the browser is applied: the browser shows it already.
+        """
+        if self._front:
+            self._show_safe()
+            return
         plan: Plan = self.session.plan
         self._syncing = True
         try:
@@ -215,9 +253,7 @@ class PlanControlsPanel(w.VBox):
                 if name == "acc_bits":
                     safe = int(max(L.safe_acc_bits.max() for L in self._intlayers()))
                     s.max = max(s.max, min(safe + 8, INT_LIMITS["acc_bits"][1]))
-                s.min, s.max = min(s.min, v), max(s.max, v)
-                s.value = v
-                self.boxes[name].value = v
+                self._write(name, v)
             for name, d in self.choices.items():
                 d.value = getattr(plan.layers[self._shown_layer(name)], name)
         finally:
@@ -242,8 +278,14 @@ class PlanControlsPanel(w.VBox):
             safe = int(layers[li].safe_acc_bits.max())
             have = self.session.plan.layers[li].acc_bits
             mark = "ok" if have >= safe else "can overflow"
-            parts.append(f"L{li + 1}: {safe} b ({mark})")
-        self.safe_label.value = "guaranteed safe " + ", ".join(parts)
+            colour = "#2d6a2d" if have >= safe else "#b00020"
+            parts.append(f"L{li + 1} {safe} b <span style='color:{colour}'>{mark}</span>")
+        tip = "guaranteed-safe accumulator width per layer: at this width or wider no input overflows"
+        # one line of fixed width (never wraps), so every slider row has the same height
+        self.safe_label.value = (
+            f"<div title='{tip}' style='white-space:nowrap;overflow:hidden;text-overflow:ellipsis;font-size:12px'>"
+            "safe: " + ", ".join(parts) + "</div>"
+        )
 
     def _show_result(self, result: SessionResult) -> None:
         self._show_safe()

@@ -30,10 +30,17 @@ BAR_EVENTS: dict[str, tuple[str, str]] = {
 _BASE = 0.5  # log axes start here; a count of 0 is drawn with zero height
 
 
-def log_ticks(top: float) -> np.ndarray:
-    """Powers of ten from 1 up to ``top`` (float32): readable ticks of a log count axis."""
+def log_ticks(top: float, most: int = 5) -> np.ndarray:
+    """Powers of ten from 1 up to ``top`` (float32), at most ``most`` of them: readable log-axis ticks.
+
+    With more decades than ``most``, every second (third...) decade is kept, always from 1.
+
+    >>> log_ticks(500).tolist(), log_ticks(2e6).tolist()
+    ([1.0, 10.0, 100.0], [1.0, 100.0, 10000.0, 1000000.0])
+    """
     n = max(0, int(np.floor(np.log10(max(top, 1.0)))))
-    return (10.0 ** np.arange(n + 1)).astype(np.float32)
+    step = -(-(n + 1) // most)
+    return (10.0 ** np.arange(0, n + 1, step)).astype(np.float32)
 
 
 def log_heights(counts: np.ndarray) -> np.ndarray:
@@ -61,7 +68,7 @@ class EventsPlot(w.VBox):
         self.xs = bq.OrdinalScale()
         self.ys = bq.LogScale(min=_BASE)
         colours = [c for _, c in BAR_EVENTS.values()]
-        self.y_axis = bq.Axis(scale=self.ys, side="left", label="count (log)", tick_format="d")
+        self.y_axis = bq.Axis(scale=self.ys, side="left", label="count (log)", tick_format="~s")
         self.bars = bq.Bars(
             scales={"x": self.xs, "y": self.ys}, type="grouped", colors=colours, base=_BASE,
             labels=[d for d, _ in BAR_EVENTS.values()], display_legend=False, padding=0.2,
@@ -131,7 +138,7 @@ class HistogramPlot(w.VBox):
         self.xs = bq.LinearScale()
         self.ys = bq.LogScale(min=_BASE)
         self.bars = bq.Bars(scales={"x": self.xs, "y": self.ys}, colors=["#4a6fa5"], base=_BASE, padding=0.0)
-        self.y_axis = bq.Axis(scale=self.ys, side="left", tick_format="d")
+        self.y_axis = bq.Axis(scale=self.ys, side="left", tick_format="~s")
         self.marks = bq.Lines(
             scales={"x": self.xs, "y": self.ys}, colors=["#d62d7b", "#d62d7b", "#1aaabe", "#1aaabe"],
             line_style="dashed", stroke_width=2,
@@ -181,12 +188,14 @@ class HistogramPlot(w.VBox):
 
 
 class HistogramsPanel(w.VBox):
-    """One :class:`HistogramPlot` per neuron (up to ``max_plots``), in rows of three."""
+    """One :class:`HistogramPlot` per neuron (up to ``max_plots``), in a row that wraps (three a line when wide)."""
 
     def __init__(self, session: Session, max_plots: int = 12, width: int = 300, **kwargs: Any) -> None:
         n = len(session.result.neurons)
         self.plots = [HistogramPlot(session, i, width) for i in range(min(n, max_plots))]
-        rows = [w.HBox(self.plots[i : i + 3]) for i in range(0, len(self.plots), 3)]
+        for hp in self.plots:  # keep their size; the row wraps in a narrow notebook
+            hp.layout = w.Layout(flex="0 0 auto", margin="0 12px 8px 0", width=f"{width + 10}px")
+        rows = [w.HBox(self.plots, layout=w.Layout(flex_flow="row wrap", align_items="flex-start"))]
         head = w.HTML(
             "<b>exact accumulator sums on the data</b> <span style='font-size:12px'>(per neuron; dashed: "
             "accumulator range in red, table window in teal; what lies outside is cut off)</span>"

@@ -8,6 +8,7 @@
 
 from __future__ import annotations
 
+import html
 from pathlib import Path
 from typing import Any
 
@@ -30,8 +31,24 @@ __all__ = ["Explorer", "demo_explorer", "DEMO_ASSETS"]
 DEMO_ASSETS = Path(__file__).resolve().parents[2] / "assets"
 
 
+def _wrap_row(children: list[w.Widget]) -> w.HBox:
+    """A row that wraps onto the next line when the notebook is narrow (children keep their size)."""
+    return w.HBox(children, layout=w.Layout(flex_flow="row wrap", align_items="flex-start", width="100%"))
+
+
+def _section(title: str, body: w.Widget) -> w.VBox:
+    head = w.HTML(f"<h3 style='margin:14px 0 4px 0;font-size:15px'>{html.escape(title)}</h3>")
+    box = w.VBox([head, body], layout=w.Layout(border_top="1px solid #ccc", margin="6px 0 0 0"))
+    box.add_class("fxnet-section")
+    return box
+
+
 class Explorer(w.VBox):
     """Controls, status line, slices, cube, events, histograms, preview and metrics.
+
+    Below the controls and the status line come titled sections, all shown at
+    once (:attr:`sections`): "decision boundary" (slices and cube, for three
+    inputs), "image" (with an image) and "overflow and clamps".
 
     Parameters
     ----------
@@ -71,24 +88,25 @@ class Explorer(w.VBox):
         s = self.session
         self.status = StatusLinePanel(s)
         self.controls = PlanControlsPanel(s)
-        self.metrics = MetricsPanel(s, layout=w.Layout(width="560px"))
+        self.metrics = MetricsPanel(s, layout=w.Layout(width="560px", flex="0 1 auto"))
         self.events = EventsPlot(s)
         self.histograms = HistogramsPanel(s)
-        tabs: list[tuple[str, w.Widget]] = []
+        parts: list[tuple[str, w.Widget]] = []
         self.boundary = self.cube = None
         if s.cube_ok:
             self.boundary = BoundaryPanel(s)
             self.cube = CubePanel(s)
-            tabs.append(("decision boundary", w.HBox([self.boundary, self.cube])))
+            parts.append(("decision boundary", _wrap_row([self.boundary, self.cube])))
         self.preview = None
         if s.image is not None:
             self.preview = PreviewPanel(s)
-            tabs.append(("image", self.preview))
-        tabs.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
-        self.tabs = w.Tab(children=[c for _, c in tabs])
-        for i, (title, _) in enumerate(tabs):
-            self.tabs.set_title(i, title)
-        super().__init__([w.HBox([self.controls, self.metrics]), self.status, self.tabs])
+            parts.append(("image", self.preview))
+        parts.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
+        # titled sections, all shown at once: a figure in a hidden tab is drawn at zero size (bqplot
+        # then logs negative <rect> sizes), and a report embeds the widgets with no kernel to redraw them
+        self.sections: dict[str, w.VBox] = {title: _section(title, body) for title, body in parts}
+        top = _wrap_row([self.controls, self.metrics])
+        super().__init__([top, self.status, *self.sections.values()])
         self.add_class("fxnet-explorer")
 
     @classmethod
@@ -126,7 +144,9 @@ class Explorer(w.VBox):
         """Deterministic text of what the views show (for notebooks and reports)."""
         return self.session.summary() + "\nstatus: " + self.status.text
 
-    def save_report(self, path: str | Path, *, offline_bundles: str | Path | None = None, title: str | None = None) -> Path:
+    def save_report(
+        self, path: str | Path, *, offline_bundles: str | Path | None = None, title: str | None = None
+    ) -> Path:
         """Write a one-file HTML report of the current state (see :func:`fxnet_widgets.report.save_report`).
 
         The report reads without JavaScript (tables and pictures rendered in Python) and

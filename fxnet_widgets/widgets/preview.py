@@ -14,7 +14,7 @@ from typing import Any
 import ipywidgets as w
 import traitlets as t
 
-from ..render.raster import decision_mask_png, overlay_png, png_bytes
+from ..render.raster import MAX_RINGED, decision_mask_png, overlay_png, png_bytes
 from .session import Session, SessionResult
 
 __all__ = ["PreviewPanel"]
@@ -27,7 +27,10 @@ class PreviewPanel(w.VBox):
     ----------
     input_image, float_image, fixed_image, overlay_image : ipywidgets.Image
         PNG bytes of the input codes, the float decisions, the fixed-point
-        decisions and the input dimmed with the disagreeing pixels coloured.
+        decisions and the input dimmed with the disagreeing pixels coloured
+        (and, when only a few differ, ringed: see :func:`~fxnet_widgets.render.overlay_png`).
+    overlay_caption : ipywidgets.HTML
+        How many pixels differ, under the overlay.
     full_resolution : ipywidgets.ToggleButton
         Linked to ``session.full_resolution``.
     note : ipywidgets.HTML
@@ -49,10 +52,13 @@ class PreviewPanel(w.VBox):
 
         self.input_image, self.float_image, self.fixed_image, self.overlay_image = img(), img(), img(), img()
         titles = ["input", "float decision", "fixed-point decision", "where they differ"]
+        self.overlay_caption = w.HTML(layout=w.Layout(width=f"{width}px"))
+        cell_layout = {"flex": "0 0 auto", "margin": "0 12px 6px 0"}
         cells = [
-            w.VBox([w.HTML(f"<b>{title}</b>"), im])
+            w.VBox([w.HTML(f"<b>{title}</b>"), im], layout=w.Layout(**cell_layout))
             for title, im in zip(titles, (self.input_image, self.float_image, self.fixed_image, self.overlay_image))
         ]
+        cells[3].children = (*cells[3].children, self.overlay_caption)
         self.full_resolution = w.ToggleButton(
             value=session.full_resolution, description="full resolution",
             tooltip="compute every pixel (slower); off: a subsampled live preview",
@@ -61,7 +67,10 @@ class PreviewPanel(w.VBox):
         self.note = w.HTML()
         self._codes: Any = None
         self._last: Any = None
-        super().__init__([w.HBox(cells[:2]), w.HBox(cells[2:]), w.HBox([self.full_resolution, self.note])], **kwargs)
+        wrap = {"flex_flow": "row wrap", "align_items": "flex-start"}
+        rows = [w.HBox(cells, layout=w.Layout(**wrap)),
+                w.HBox([self.full_resolution, self.note], layout=w.Layout(**wrap))]  # fmt: skip
+        super().__init__(rows, **kwargs)
         session.add_view("preview", self._draw)
 
     def _draw(self, result: SessionResult) -> None:
@@ -77,7 +86,15 @@ class PreviewPanel(w.VBox):
             self.input_image.value = png_bytes(im.codes)
             self.float_image.value = decision_mask_png(im.float_, n)
         self.fixed_image.value = decision_mask_png(im.fixed, n)
-        self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n)
+        self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n, rings=True)
+        m = im.mismatch
+        if m == 0:
+            said = "no pixel differs"
+        elif m <= MAX_RINGED:
+            said = f"{m} pixel{'s' if m > 1 else ''} differ{'' if m > 1 else 's'}, each ringed in white"
+        else:
+            said = f"{m} pixels differ"
+        self.overlay_caption.value = f"<span style='font-size:12px'>{said}</span>"
         flag = " (downscaled: use full resolution for every pixel)" if im.factor > 1 else ""
         self.note.value = (
             f"<span style='font-size:12px'>{html.escape(im.note)}{flag}; {im.mismatch} of {im.fixed.size} "

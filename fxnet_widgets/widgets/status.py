@@ -7,9 +7,37 @@ from typing import Any
 
 import ipywidgets as w
 
+from ..core.plan import Plan
 from .session import Session, SessionResult
 
-__all__ = ["StatusLinePanel", "SweepProgressBar"]
+__all__ = ["StatusLinePanel", "SweepProgressBar", "plan_widths", "WIDTHS_KEY"]
+
+#: what the short width words of :func:`plan_widths` mean (the status line's tooltip)
+WIDTHS_KEY = (
+    "per layer: W weight width.fraction bits, A accumulator width, T table address bits.table input fraction bits "
+    "(sigmoid/tanh), O output width (.fraction bits for relu/identity)"
+)
+
+
+def plan_widths(plan: Plan) -> str:
+    """The plan's widths in short words, one group per layer (see :data:`WIDTHS_KEY`).
+
+    >>> from fxnet_widgets.core.plan import Plan
+    >>> plan_widths(Plan.from_dict({"layers": [
+    ...     {"weight_bits": 10, "weight_frac": 5, "acc_bits": 18, "out_bits": 8, "table_bits": 14, "table_frac": 10},
+    ...     {"weight_bits": 8, "weight_frac": 6, "acc_bits": 16, "out_bits": 8, "out_frac": 4}]}))
+    'L1 W10.5 A18 T14.10 O8, L2 W8.6 A16 O8.4'
+    """
+    groups = []
+    for i, lp in enumerate(plan.layers):
+        words = [f"L{i + 1}", f"W{lp.weight_bits}.{lp.weight_frac}", f"A{lp.acc_bits}"]
+        if lp.table_bits is not None:
+            words.append(f"T{lp.table_bits}.{lp.table_frac}")
+            words.append(f"O{lp.out_bits}")
+        else:
+            words.append(f"O{lp.out_bits}" + (f".{lp.out_frac}" if lp.out_frac is not None else ""))
+        groups.append(" ".join(words))
+    return ", ".join(groups)
 
 
 class StatusLinePanel(w.HTML):
@@ -43,7 +71,8 @@ class StatusLinePanel(w.HTML):
             ev = r.event_totals()
             parts.append(
                 f"ok: update {s.version}, accumulator overflows {ev['acc_overflow']}, "
-                f"table clamps {ev['table_low'] + ev['table_high']}, clipped weights {ev['weight_clip']}"
+                f"table clamps {ev['table_low'] + ev['table_high']}, clipped weights {ev['weight_clip']}; "
+                f"widths {plan_widths(r.plan)}"
             )
         return "; ".join(parts)
 
@@ -51,7 +80,10 @@ class StatusLinePanel(w.HTML):
         s = self.session
         bad = bool(s.error or s.view_errors)
         colour = "#b00020" if bad else "#2d6a2d"
-        self.value = f'<span style="color:{colour};font-family:monospace">{html.escape(self.text)}</span>'
+        self.value = (
+            f'<span style="color:{colour};font-family:monospace" title="{html.escape(WIDTHS_KEY)}">'
+            f"{html.escape(self.text)}</span>"
+        )
 
 
 class SweepProgressBar(w.HBox):

@@ -350,7 +350,7 @@ SNAPSHOT_JS = r"""
     const handle = s.querySelector('.noUi-handle');
     if (label && handle) sliders[label.textContent.trim()] = handle.getAttribute('aria-valuenow');
   }
-  const pres = [...root.querySelectorAll('pre')].map(p => p.textContent);
+  const metrics = root.querySelector('.fxnet-metrics');
   return {
     figures,
     images: [...root.querySelectorAll('img.widget-image')].map(i => i.getAttribute('src') || ''),
@@ -358,7 +358,9 @@ SNAPSHOT_JS = r"""
     pictures: Object.fromEntries([...root.querySelectorAll('img.widget-image')].map(i => [
       ((i.previousElementSibling || {}).textContent || '').trim(), i.getAttribute('src') || ''])),
     status: ((root.querySelector('.fxnet-status') || {}).textContent || '').trim(),
-    metrics: pres.find(t => t.includes('hardware cost')) || '',
+    // the metrics panel's table as text, one row a line, cells apart by a space
+    metrics: metrics ? [...metrics.querySelectorAll('tr')].map(r => [...r.children].map(c =>
+      c.innerText.replace(/\n/g, '; ')).join(' ')).join('\n') : '',
     sliders,
   };
 }
@@ -366,7 +368,7 @@ SNAPSHOT_JS = r"""
 
 
 class ExplorerPage:
-    """The explorer in a browser page: snapshots of what it shows, tabs, the table-width handle.
+    """The explorer in a browser page: snapshots of what it shows, sections, the table-width handle.
 
     Parameters
     ----------
@@ -412,13 +414,13 @@ class ExplorerPage:
         self.page.wait_for_timeout(300)  # let the last layout paint
         self.page.screenshot(path=str(path), full_page=True)
 
-    def tab(self, title: str) -> None:
-        """Show the explorer tab called ``title`` and wait until it is shown."""
-        tab = self.page.locator(f"{self.root} .lm-TabBar-tab", has_text=title).first
-        tab.click()
+    def section(self, title: str) -> None:
+        """Scroll the explorer section called ``title`` into view (every section is always shown)."""
+        head = self.page.locator(f"{self.root} .fxnet-section h3", has_text=title).first
+        head.evaluate("h => h.scrollIntoView({block: 'start'})")
         self.page.wait_for_function(
-            "([root, title]) => [...document.querySelector(root).querySelectorAll('.lm-TabBar-tab')]"
-            ".some(t => t.textContent.trim() === title && t.classList.contains('lm-mod-current'))",
+            "([root, title]) => [...document.querySelector(root).querySelectorAll('.fxnet-section h3')]"
+            ".some(h => h.textContent.trim() === title && h.getBoundingClientRect().height > 0)",
             arg=[self.root, title],
         )  # fmt: skip
 

@@ -84,5 +84,7 @@ def test_run_all_then_drag_the_table_width(lab_server, new_page, explorer_page, 
     assert shown == low, f"the table-width slider was dropped at {low} but moved back to {shown}"
     # at the narrowest table the fixed-point decisions change: the preview image has a new src
     fixed = "fixed-point decision"
+    ex.section("decision boundary")  # for the report: the slices at Lab's width with the file browser open
+    ex.screenshot(artifacts / "lab-explorer-boundary.png")
     ex.wait_for("(s, old) => s.pictures[old[0]] && s.pictures[old[0]] !== old[1]", [fixed, before["pictures"][fixed]])
     assert not log.page_errors, "uncaught errors in the page:\n" + "\n".join(log.page_errors)

@@ -34,14 +34,13 @@ def test_table_width_key_press_updates_every_view(voila_server, new_page, explor
     # read every old value BEFORE pressing the key (reading after may already see the new one)
     ex.wait_for("(s) => ['R-G', 'R-B', 'G-B'].every(t => s.figures[t] && s.figures[t].heatmap)")
     before = ex.snapshot()
-    ex.tab("overflow and clamps")
+    ex.section("overflow and clamps")
     ex.wait_for("(s) => Object.values(s.figures).some(f => f.visible && f.bars > 0)")
-    ex.wait_drawn()  # figures made in a hidden tab are laid out when shown: read them after that
-    page.wait_for_timeout(500)
+    ex.wait_drawn()
     before_hist = ex.snapshot()["figures"]
     histograms = sorted(t for t, f in before_hist.items() if t not in ("R-G", "R-B", "G-B", "events per neuron"))
     assert histograms, f"no histogram figures among {sorted(before_hist)}"
-    ex.tab("decision boundary")
+    ex.section("decision boundary")
 
     handle = ex.slider_handle(ex.TABLE_WIDTH)
     old = int(float(handle.get_attribute("aria-valuenow")))
@@ -60,6 +59,9 @@ def test_table_width_key_press_updates_every_view(voila_server, new_page, explor
     assert float(after["sliders"][ex.TABLE_WIDTH]) == new
     assert int(ex.number_box(ex.TABLE_WIDTH).input_value()) == new  # the linked number box followed
     assert f"table(s) of {2**old} x 8 b" not in after["metrics"]
+    # the status line names the plan's widths: T<address bits>.<fraction bits> on every layer
+    widths = re.findall(r"L\d+ W-?\d+\.-?\d+ A\d+ T(\d+)\.", after["status"])
+    assert widths and all(int(t) == new for t in widths), after["status"]
 
     # the boundary heat maps (the PNG each one draws) changed
     ex.wait_for(
@@ -69,7 +71,7 @@ def test_table_width_key_press_updates_every_view(voila_server, new_page, explor
     ex.screenshot(artifacts / "voila-boundary.png")
 
     # the preview: the fixed-point decision image got a new src (a new blob: URL)
-    ex.tab("image")
+    ex.section("image")
     fixed = "fixed-point decision"
     assert before["pictures"].get(fixed), f"no picture titled {fixed!r} among {sorted(before['pictures'])}"
     ex.wait_for("(s, old) => s.pictures[old[0]] && s.pictures[old[0]] !== old[1]", [fixed, before["pictures"][fixed]])
@@ -77,7 +79,7 @@ def test_table_width_key_press_updates_every_view(voila_server, new_page, explor
     ex.screenshot(artifacts / "voila-image.png")
 
     # the histograms: the table window marks moved (their SVG changed)
-    ex.tab("overflow and clamps")
+    ex.section("overflow and clamps")
     ex.wait_for(
         "(s, old) => Object.keys(old).every(t => s.figures[t] && s.figures[t].svg !== old[t])",
         {t: before_hist[t]["svg"] for t in histograms},

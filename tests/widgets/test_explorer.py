@@ -122,9 +122,44 @@ def test_sample_points_near_each_slice(explorer, labelled_samples):
     sp = explorer.boundary.slices[1]  # R-B at green
     sp.position.value = 100
     near = np.abs(codes[:, 1].astype(int) - 100) <= 8  # 4 grid steps of 2 codes
-    assert np.array_equal(sp.points.x, codes[near, 0].astype(np.float32))
-    assert np.array_equal(sp.points.y, codes[near, 2].astype(np.float32))
-    assert np.array_equal(sp.points.color, labels[near].astype(np.float32))
+    assert len(sp.points) == 2  # one mark per class: its own shape and outline
+    assert sp.points[0].marker != sp.points[1].marker
+    for k, mark in enumerate(sp.points):
+        mine = near & (labels == k)
+        assert np.array_equal(mark.x, codes[mine, 0].astype(np.float32))
+        assert np.array_equal(mark.y, codes[mine, 2].astype(np.float32))
+    assert sum(m.x.size for m in sp.points) == int(near.sum())
+
+
+def test_sample_dots_are_outlined_in_the_contrasting_colour(explorer):
+    from fxnet_widgets.render.palette import class_colours, hex_colour
+
+    slate, amber = (hex_colour(c) for c in class_colours(2))
+    other, ripe = explorer.boundary.slices[0].points
+    # the fills are the class colours; a dark fill gets a white outline, a light one a black outline
+    assert (other.colors, other.stroke) == ([slate], "#ffffff")
+    assert (ripe.colors, ripe.stroke) == ([amber], "#000000")
+
+
+def test_explorer_shows_every_section_at_once(explorer):
+    import ipywidgets as w
+
+    assert list(explorer.sections) == ["decision boundary", "image", "overflow and clamps"]
+    assert all(sec in explorer.children for sec in explorer.sections.values())
+
+    def walk(widget):
+        yield widget
+        for child in getattr(widget, "children", ()):
+            yield from walk(child)
+
+    # no tab or accordion: a figure in a hidden page is drawn at zero size (negative bqplot rects)
+    assert not any(isinstance(x, (w.Tab, w.Accordion, w.Stack)) for x in walk(explorer))
+    assert explorer.sections["overflow and clamps"].children[1].children[0] is explorer.events
+
+
+def test_status_line_shows_the_plan_widths(explorer):
+    explorer.controls.sliders["table_bits"].value = 7
+    assert explorer.status.text.endswith("; widths L1 W10.5 A18 T7.8 O8, L2 W10.7 A19 T7.8 O8")
 
 
 def test_many_rapid_changes_end_in_the_last_state(explorer):
@@ -310,3 +345,44 @@ def test_reading_the_result_computes_a_waiting_change(explorer):
 
     assert asyncio.run(read()) == 12
     assert not s.pending
+
+
+def test_overlay_caption_says_how_many_pixels_differ(explorer):
+    im = explorer.session.result.image
+    m = im.mismatch
+    text = explorer.preview.overlay_caption.value
+    if m == 0:
+        assert "no pixel differs" in text
+    else:
+        assert f"{m} pixel" in text
+    explorer.controls.sliders["table_bits"].value = 2  # a coarse table: the decisions move
+    m2 = explorer.session.result.image.mismatch
+    assert m2 != m and f">{m2} pixel" in explorer.preview.overlay_caption.value
+
+
+def test_metrics_panel_is_an_escaped_table_of_the_text(explorer):
+    import html
+    import re
+
+    value = explorer.metrics.html.value
+    assert value.startswith("<table") and "<pre" not in value
+    cells = [html.unescape(re.sub(r"<br>", "; ", c)) for c in re.findall(r"<t[dh][^>]*>(.*?)</t[dh]>", value)]
+    # every summary line is in the table, word for word (key and value cells joined back)
+    joined = "\n".join(cells)
+    for line in explorer.metrics.text.splitlines():
+        body = line.strip()
+        key, _, rest = body.partition(": ")
+        assert (body in joined) or (key in cells and rest in cells), line
+    from fxnet_widgets.widgets.metrics import metrics_table_html
+
+    assert "&lt;b&gt;" in metrics_table_html(["<b>", "  a: <i>"]) and "&lt;i&gt;" in metrics_table_html(["  a: <i>"])
+
+
+def test_log_axes_have_at_most_five_decade_ticks(explorer):
+    from fxnet_widgets.widgets.events import log_ticks
+
+    for top in (1.0, 9.0, 10.0, 500.0, 2e5, 2e6, 1e9):
+        t = log_ticks(top)
+        assert 1 <= t.size <= 5 and t[0] == 1.0 and t[-1] <= top
+        assert np.allclose(np.log10(t), np.round(np.log10(t)))  # decades only
+    assert explorer.events.y_axis.tick_values.size <= 5

@@ -26,7 +26,8 @@ SETUP = textwrap.dedent(
     plan = Plan.uniform(net, weight_bits=10, weight_frac=5, acc_bits=18, out_bits=8, table_bits=12, table_frac=8)
     img = np.random.default_rng(0).integers(0, 256, (90, 160, 3)).astype(np.uint8)
     ex = Explorer(net, image=img, plan=plan)
-    print(json.dumps({{"id": ex.controls.sliders["acc_bits"].model_id, "computed": ex.session.computed}}))
+    print(json.dumps({{"id": ex.controls.sliders["acc_bits"].model_id, "box": ex.controls.boxes["acc_bits"].model_id,
+                      "computed": ex.session.computed}}))
     """
 )
 REPORT = (
@@ -36,12 +37,15 @@ REPORT = (
 )
 
 
-def _run(kc, code: str) -> str:
+def _run(kc, code: str, seen: list | None = None) -> str:
+    """Run ``code``; its stdout. Every other iopub message read meanwhile goes to ``seen``."""
     msg_id = kc.execute(code)
     out = []
     while True:
         m = kc.get_iopub_msg(timeout=60)
         if m["parent_header"].get("msg_id") != msg_id:
+            if seen is not None:
+                seen.append(m)
             continue
         if m["msg_type"] == "stream":
             out.append(m["content"]["text"])
@@ -67,3 +71,36 @@ def test_a_drag_in_a_live_kernel_is_coalesced_and_ends_on_the_last_value():
     assert end["error"] == ""
     # latest value wins: far fewer computations than messages (each message alone would be one)
     assert end["computed"] - start["computed"] < len(values) // 2
+
+
+def _update(comm_id: str, value: int) -> dict:
+    return {"comm_id": comm_id, "data": {"method": "update", "state": {"value": value}, "buffer_paths": []}}
+
+
+def test_a_drag_with_the_linked_box_gets_no_value_echoed_back():
+    """The browser sends the slider's values and the jslinked box's copies (one late and stale): the
+    kernel computes the slider's last value and sends no slider or box value back (no bounce)."""
+    km, kc = jupyter_client.manager.start_new_kernel(kernel_name="python3")
+    seen: list = []
+    try:
+        start = json.loads(_run(kc, SETUP).strip().splitlines()[-1])
+        values = [17, 15, 13, 11, 9, 7]
+        for v in values:
+            kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["id"], v)))
+            kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["box"], v)))
+        kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["box"], 13)))  # stale copy, late
+        kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["box"], 7)))
+        end = json.loads(_run(kc, REPORT, seen).strip().splitlines()[-1])
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)
+    assert end["plan"] == [7, 7] and end["shown"] == [7, 7] and end["slider"] == 7
+    echoed = [
+        m["content"]["data"]["state"]["value"]
+        for m in seen
+        if m["msg_type"] == "comm_msg"
+        and m["content"].get("comm_id") in (start["id"], start["box"])
+        and m["content"]["data"].get("method") == "update"
+        and "value" in m["content"]["data"].get("state", {})
+    ]
+    assert echoed == []
