@@ -13,6 +13,7 @@ from .palette import (
     FIXED_ONLY,
     FLOAT_ONLY,
     class_colours,
+    slice_legend_names,
     slice_palette,
 )
 from .raster import (
@@ -44,5 +45,6 @@ __all__ = [
     "palette_png",
     "png_bytes",
     "render_cube",
+    "slice_legend_names",
     "slice_palette",
 ]

@@ -7,6 +7,8 @@ says "target". Several classes get one colour each plus one for disagreement.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numpy as np
 
 __all__ = [
@@ -46,6 +48,18 @@ def class_colours(n_classes: int) -> np.ndarray:
     base = [AGREE_NEGATIVE, AGREE_POSITIVE, *_EXTRA]
     cols = [base[i % len(base)] for i in range(int(n_classes))]
     return np.array(cols, dtype=np.uint8)
+
+
+def slice_legend_names(classes: Sequence[str]) -> list[str]:
+    """What each colour of :func:`slice_palette` means, for these class names (in order).
+
+    >>> slice_legend_names(["other", "ripe"])
+    ['both other', 'both ripe', 'only fixed point: ripe', 'only float: ripe']
+    """
+    if len(classes) == 2:
+        return [f"both {classes[0]}", f"both {classes[1]}", f"only fixed point: {classes[1]}",
+                f"only float: {classes[1]}"]  # fmt: skip
+    return [f"both {c}" for c in classes] + ["they disagree"]
 
 
 def slice_palette(n_classes: int) -> np.ndarray:

@@ -10,8 +10,8 @@ A report has two layers:
 * the widgets themselves, embedded with their state by the standard Jupyter
   widgets embedding (``application/vnd.jupyter.widget-state+json``). There is
   no kernel in a report, so the page says which controls still work: the
-  browser-side links (``jslink``: each width slider with its number box) and
-  the tabs; everything that recomputes needs a kernel.
+  browser-side links (``jslink``: each width slider with its number box);
+  everything that recomputes needs a kernel.
 
 By default the page loads require.js and the widget manager from public CDNs
 (bqplot's bundle is inlined from the installed wheel: its JavaScript 0.6.x is
@@ -136,7 +136,7 @@ def kernel_note(manager_state: dict[str, Any], root: Any = None) -> str:
     items = "".join(f"<li>{esc(x)}</li>" for x in sorted(set(linked)))
     return (
         '<div class="note" id="kernel-note"><p><strong>This page has no Python kernel.</strong> The widgets below '
-        "show the state they had when the report was saved. What still works here: the tabs, and the controls "
+        "show the state they had when the report was saved. What still works here: the controls "
         "linked in the browser (<code>jslink</code>), which move together but recompute nothing:</p>"
         f'<ul class="linked">{items or "<li>(none)</li>"}</ul>'
         "<p>What needs a kernel (open the notebook, or run <code>fxnet</code> again): every change of the plan "

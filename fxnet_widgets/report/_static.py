@@ -31,6 +31,7 @@ from ..render import (
     overlay_png,
     palette_png,
     png_bytes,
+    slice_legend_names,
     slice_palette,
 )
 from ..render.charts import ACC_RANGE_COLOUR, EVENT_STYLES, NO_EVENTS_TEXT, TABLE_WINDOW_COLOUR
@@ -87,11 +88,7 @@ def _upscale(index: np.ndarray, target: int = 256) -> np.ndarray:
 
 def _legend(classes: Sequence[str]) -> str:
     pal = slice_palette(len(classes))
-    if len(classes) == 2:
-        names = [f"both {classes[0]}", f"both {classes[1]}", f"only fixed point: {classes[1]}",
-                 f"only float: {classes[1]}"]  # fmt: skip
-    else:
-        names = [f"both {c}" for c in classes] + ["they disagree"]
+    names = slice_legend_names(classes)
     items = [
         f'<span class="swatch" style="background:{hex_colour(c)}"></span>{esc(n)}' for c, n in zip(pal, names)
     ]

@@ -21,7 +21,7 @@ import numpy as np
 import traitlets as t
 
 from ..render.cube import cube_png
-from ..render.palette import class_colours, hex_colour, slice_palette
+from ..render.palette import class_colours, hex_colour, slice_legend_names, slice_palette
 from ..render.raster import comparison_codes
 from .session import SLICES, Session, SessionResult
 
@@ -34,11 +34,7 @@ _POSITION_TRAIT = {2: "slice_blue", 1: "slice_green", 0: "slice_red"}
 
 def _legend(classes: tuple[str, ...]) -> str:
     pal = slice_palette(len(classes))
-    if len(classes) == 2:
-        names = [f"both {classes[0]}", f"both {classes[1]}", f"only fixed point: {classes[1]}",
-                 f"only float: {classes[1]}"]  # fmt: skip
-    else:
-        names = [f"both {c}" for c in classes] + ["they disagree"]
+    names = slice_legend_names(classes)
     items = [
         f'<span style="white-space:nowrap;margin-right:14px"><span style="display:inline-block;width:12px;'
         f'height:12px;background:{hex_colour(c)};margin-right:4px;vertical-align:middle;border:1px solid #999">'
