@@ -155,11 +155,19 @@ def playwright_api() -> Any:
 
 
 @pytest.fixture(scope="session")
-def browser(playwright_api: Any) -> Iterator[Any]:
-    """Debian's headless Chromium, launched once for the session."""
+def chromium_available(playwright_api: Any) -> Any:
+    """Skip (or fail in CI) early when the browser is missing; servers need not start then."""
     if not CHROMIUM.exists():
         missing(f"{CHROMIUM} is not installed (apt-get install chromium)")
-    pw = playwright_api.sync_playwright().start()
+    return playwright_api
+
+
+# module scope: playwright's sync API keeps an asyncio loop running in this thread while it
+# is started, and later tests (widgets) run their own loops with asyncio.run
+@pytest.fixture(scope="module")
+def browser(chromium_available: Any) -> Iterator[Any]:
+    """Debian's headless Chromium, launched once per test module."""
+    pw = chromium_available.sync_playwright().start()
     try:
         b = pw.chromium.launch(executable_path=str(CHROMIUM), headless=True, args=CHROMIUM_ARGS)
     except Exception as exc:
@@ -233,7 +241,7 @@ def _module_available(name: str) -> bool:
 
 
 @pytest.fixture(scope="session")
-def voila_server(tmp_path_factory: pytest.TempPathFactory, browser: Any) -> Iterator[Server]:
+def voila_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
     """Voila serving ``tests/browser/dashboard.ipynb`` on a free loopback port (only once a browser is there)."""
     if not _module_available("voila"):
         missing("voila is not installed (pip install -e '.[lab]')")
@@ -256,7 +264,7 @@ QUICK_START = ROOT / "notebooks" / "01-quick-start.ipynb"
 
 
 @pytest.fixture(scope="session")
-def lab_server(tmp_path_factory: pytest.TempPathFactory, browser: Any) -> Iterator[Server]:
+def lab_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
     """JupyterLab on a free loopback port, its own notebook dir holding a copy of the quick start (needs a browser)."""
     if not _module_available("jupyterlab"):
         missing("jupyterlab is not installed (pip install -e '.[lab]')")
@@ -301,7 +309,7 @@ def lab_server(tmp_path_factory: pytest.TempPathFactory, browser: Any) -> Iterat
 
 # -- the offline report --------------------------------------------------------------------
 @pytest.fixture(scope="session")
-def html_manager_dir(browser: Any) -> Path:
+def html_manager_dir(chromium_available: Any) -> Path:
     """The html-manager bundle (``dist/embed-amd.js``), fetched once with npm into a user cache."""
     target = BUNDLE_CACHE / "html-manager"
     if (target / "dist" / "embed-amd.js").is_file():
