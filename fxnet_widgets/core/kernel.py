@@ -101,11 +101,14 @@ _QUANT_CACHE = _LRU(64)
 _INPUT_CACHE = _LRU(4)
 _LAYER_CACHE = _LRU(12)
 _FLOAT_CACHE = _LRU(4)
+# first-layer exact sums by the integer weights' values: a change of the
+# accumulator, table or output fields keeps them (the product gathers are skipped)
+_SUM_CACHE = _LRU(4)
 
 
 def clear_caches() -> None:
     """Empty every cache of the kernel (for benchmarks and tests)."""
-    for c in (_QUANT_CACHE, _INPUT_CACHE, _LAYER_CACHE, _FLOAT_CACHE):
+    for c in (_QUANT_CACHE, _INPUT_CACHE, _LAYER_CACHE, _FLOAT_CACHE, _SUM_CACHE):
         c.clear()
 
 
@@ -116,6 +119,7 @@ def cache_stats() -> dict[str, tuple[int, int]]:
         "input": (_INPUT_CACHE.hits, _INPUT_CACHE.misses),
         "layer": (_LAYER_CACHE.hits, _LAYER_CACHE.misses),
         "float": (_FLOAT_CACHE.hits, _FLOAT_CACHE.misses),
+        "sums": (_SUM_CACHE.hits, _SUM_CACHE.misses),
     }
 
 
@@ -507,6 +511,7 @@ def _prepare(codes: Any, bits: int, n_in: int) -> _Prepared:
 # first product table), so they are non-negative and index the per-neuron
 # look-up table of steps 4-7 directly.
 _LUT_MAX = 1 << 21
+_LUT_FRACTION = 1.0  # a table over more sums than samples costs more than it saves
 
 
 def _offset_dtype(span: int) -> type:
@@ -563,14 +568,22 @@ def _layer_sums(layer: IntegerLayer, prep: _Prepared | None, prev_codes: np.ndar
     return sums
 
 
+def _frozen(arrays: list[np.ndarray]) -> list[np.ndarray]:
+    for a in arrays:
+        a.setflags(write=False)
+    return arrays
+
+
 class _LayerOut:
     """One layer's outputs, neurons along the first axis (lazy where it pays)."""
 
-    def __init__(self, layer: IntegerLayer, shifted: list[np.ndarray], acc_direct: list[np.ndarray | None],
+    def __init__(self, layer: IntegerLayer, shifted: list[np.ndarray], acc_direct: list[Any],
                  codes: np.ndarray, events: dict[str, np.ndarray]) -> None:
         self.layer = layer
         self._shifted = shifted  # exact sum minus sum_min, per neuron
-        self._acc_direct = acc_direct  # s_A where it differs from the exact sum, else None
+        # s_A where it differs from the exact sum (an array, or a look-up table and its
+        # indices, gathered only when s_A is read), else None
+        self._acc_direct = acc_direct
         self.codes = codes  # (n_out, N)
         self.events = events
         self._acc: np.ndarray | None = None
@@ -588,7 +601,9 @@ class _LayerOut:
             out = np.empty((L.n_out, n), dtype=_smallest_int(min(min(L.sum_min), alo), max(max(L.sum_max), ahi)))
             for j in range(L.n_out):
                 direct = self._acc_direct[j]
-                if direct is not None:
+                if isinstance(direct, tuple):  # (s_A over the look-up domain, indices): gathered on first use
+                    out[j] = direct[0].take(direct[1])
+                elif direct is not None:
                     out[j] = direct
                 else:
                     np.add(self._shifted[j], np.int64(L.sum_min[j]), out=out[j], casting="unsafe")
@@ -618,29 +633,42 @@ def _run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> _LayerOut:
         code_dt = np.uint8
     codes = np.empty((layer.n_out, n), dtype=code_dt)
     counts = {name: np.zeros(layer.n_out, dtype=np.int64) for name in ("acc_overflow", "table_low", "table_high")}
-    acc_direct: list[np.ndarray | None] = []
+    acc_direct: list[Any] = []
+    obs_min = np.zeros(layer.n_out, dtype=np.int64)
+    obs_max = np.zeros(layer.n_out, dtype=np.int64)
     for j, sp in enumerate(shifted):
-        lo, hi = layer.sum_min[j], layer.sum_max[j]
-        span = hi - lo + 1
-        if span <= _LUT_MAX and span <= 2 * n + 1024:
-            dom = np.arange(lo, hi + 1, dtype=np.int64)
-            out = post_accumulate(layer, dom, lo, hi)
-            np.take(out["codes"].astype(code_dt, copy=False), sp, out=codes[j])
+        lo = layer.sum_min[j]
+        # the look-up table covers only the sums seen on the data: [lo + m0, lo + m1]
+        m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
+        if n:
+            obs_min[j], obs_max[j] = lo + m0, lo + m1
+        span = m1 - m0 + 1
+        if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
+            dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
+            out = post_accumulate(layer, dom, lo + m0, lo + m1)
+
+            def lut(v: np.ndarray, dt: Any = None, m0: int = m0) -> np.ndarray:
+                # indexed by sp directly: entries below m0 are never read
+                full = np.empty(m0 + v.shape[0], dtype=v.dtype if dt is None else dt)
+                full[m0:] = v
+                return full
+
+            np.take(lut(out["codes"], code_dt), sp, out=codes[j])
             acc_lut = out["acc"]
             changed = out["acc_overflow"] is not None
-            acc_direct.append(np.asarray(acc_lut).take(sp) if changed else None)
+            acc_direct.append((lut(np.asarray(acc_lut)), sp) if changed else None)
             flags = [out[k] for k in ("acc_overflow", "table_low", "table_high")]
             if any(f is not None and f.any() for f in flags):
                 ev = np.zeros(span, dtype=np.uint8)
                 for bit, f in enumerate(flags):
                     if f is not None:
                         ev |= f.astype(np.uint8) << np.uint8(bit)
-                hist = np.bincount(ev.take(sp), minlength=8)
+                hist = np.bincount(lut(ev).take(sp), minlength=8)
                 for bit, name in enumerate(("acc_overflow", "table_low", "table_high")):
                     counts[name][j] = int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
         else:
             s = sp.astype(np.int64) + np.int64(lo)
-            out = post_accumulate(layer, s, lo, hi)
+            out = post_accumulate(layer, s, lo + m0, lo + m1)
             codes[j] = out["codes"]
             acc_direct.append(out["acc"] if out["acc_overflow"] is not None else None)
             for name in ("acc_overflow", "table_low", "table_high"):
@@ -650,11 +678,30 @@ def _run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> _LayerOut:
     events["weight_clip"] = layer.weight_clip
     events["bias_clip"] = layer.bias_clip
     codes.setflags(write=False)
-    return _LayerOut(layer, shifted, acc_direct, codes, events)
+    res = _LayerOut(layer, shifted, acc_direct, codes, events)
+    res._range = (obs_min, obs_max)
+    return res
 
 
 # ---------------------------------------------------------------------------------
 # the result
+class _FloatRef:
+    """The float reference of one (network, input): outputs, and decisions made once on first use."""
+
+    def __init__(self, network: Network, out: np.ndarray) -> None:
+        self.network = network
+        self.out = out
+        self._decisions: np.ndarray | None = None
+
+    @property
+    def decisions(self) -> np.ndarray:
+        if self._decisions is None:
+            dec = self.network.decide(self.out)
+            dec.setflags(write=False)
+            self._decisions = dec
+        return self._decisions
+
+
 class Emulation:
     """Result of :func:`emulate` (read-only arrays).
 
@@ -709,6 +756,19 @@ class Emulation:
         """s_A of one neuron as a flat contiguous (N,) array (fast for plots)."""
         return self._outs[layer].acc[neuron]
 
+    def neuron_sums(self, layer: int, neuron: int) -> np.ndarray:
+        """Exact sums ``s`` (before the accumulator) of one neuron as a flat (N,) int64 array.
+
+        Where no accumulator overflow happened they equal :meth:`neuron_acc`.
+        """
+        shifted, offset = self._neuron_shifted(layer, neuron)
+        return np.add(shifted, np.int64(offset), dtype=np.int64)
+
+    def _neuron_shifted(self, layer: int, neuron: int) -> tuple[np.ndarray, int]:
+        """``(d, offset)`` with ``s = d + offset``; ``d`` (N,) is non-negative, read-only, small dtype."""
+        o = self._outs[layer]
+        return o._shifted[neuron], int(o.layer.sum_min[neuron])
+
     def neuron_codes(self, layer: int, neuron: int) -> np.ndarray:
         """Output codes of one neuron as a flat contiguous (N,) array."""
         return self._outs[layer].codes[neuron]
@@ -742,15 +802,20 @@ class Emulation:
             for mn, mx in zip(self.observed_min, self.observed_max)
         ]
 
+    def _float_ref(self) -> _FloatRef:
+        key = (self.network.digest, self._prep.key)
+        return _FLOAT_CACHE.get(key, lambda: _FloatRef(self.network, self.network.predict(self._prep.flat)))
+
     @property
     def float_out(self) -> np.ndarray:
-        key = (self.network.digest, self._prep.key)
-        out = _FLOAT_CACHE.get(key, lambda: self.network.predict(self._prep.flat))
+        out = self._float_ref().out
         return out if self.shape is None else out.reshape(*self.shape, out.shape[-1])
 
     @property
     def float_decisions(self) -> np.ndarray:
-        return self.network.decide(self.float_out)
+        """Decisions of the float network (read-only; computed once per network and input)."""
+        dec = self._float_ref().decisions
+        return dec if self.shape is None else dec.reshape(self.shape)
 
     @property
     def mismatch(self) -> int:
@@ -851,8 +916,12 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
         key = (network.digest, prep.key, plan.layers[: li + 1])
 
         def make(layer: IntegerLayer = layer, prev: _LayerOut | None = prev) -> _LayerOut:
-            sums = _layer_sums(layer, prep if prev is None else None, None if prev is None else prev.codes,
-                               network.input_bits)
+            if prev is None:
+                skey = (prep.key, network.input_bits, layer.q_w.shape, layer.q_w.tobytes(), layer.q_b.tobytes(),
+                        layer.sum_min, layer.sum_max)  # fmt: skip
+                sums = _SUM_CACHE.get(skey, lambda: _frozen(_layer_sums(layer, prep, None, network.input_bits)))
+            else:
+                sums = _layer_sums(layer, None, prev.codes, network.input_bits)
             return _run_layer(layer, sums)
 
         prev = _LAYER_CACHE.get(key, make)

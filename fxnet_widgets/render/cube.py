@@ -9,8 +9,10 @@ teal: only float), shaded darker with depth.
 
 from __future__ import annotations
 
+import functools
 import io
 import math
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -55,6 +57,56 @@ def _segments(size: int) -> tuple[dict, list, list]:
     return corners, hidden, front
 
 
+@dataclass(frozen=True, eq=False)
+class _Geometry:
+    """Everything of the picture that depends on the grid size and picture size only."""
+
+    corners: dict
+    front: list
+    back: np.ndarray  # background with the hidden edges (read-only)
+    dot_x: np.ndarray  # per voxel, rounded screen position of its dot
+    dot_y: np.ndarray
+    dot_ok: np.ndarray
+    level: np.ndarray  # i + j + k: larger is nearer the viewer at (1, 1, 1)
+    shade: np.ndarray  # (voxels, 1)
+    base: np.ndarray  # per voxel, the square's centre on the padded canvas
+    offsets: np.ndarray
+    edge: np.ndarray
+    pad: int
+    side: int
+
+
+@functools.lru_cache(maxsize=8)
+def _geometry(n: int, size: int) -> _Geometry:
+    corners, hidden, front = _segments(size)
+    back = Image.new("RGB", (size, size), _BACKGROUND)
+    for seg in hidden:
+        ImageDraw.Draw(back).line(seg, fill=(200, 200, 200), width=1)
+    img = np.array(back)
+    i, j, k = np.indices((n, n, n)).reshape(3, -1)
+    pos = (np.stack([i, j, k]).astype(np.float64) + 0.5) / n
+    x, y = _project(*pos, size)
+    xi, yi = np.rint(x).astype(np.int64), np.rint(y).astype(np.int64)
+    ok = (xi >= 0) & (xi < size) & (yi >= 0) & (yi < size)
+    level = i + j + k
+    half = max(1, int(round(size / (2.3 * n) * 0.6)))
+    off = np.arange(-half, half + 1)
+    ox, oy = (v.reshape(-1) for v in np.meshgrid(off, off))
+    edge = (np.abs(ox) == half) | (np.abs(oy) == half)  # square edges darker: separate voxels
+    shade = (0.6 + 0.4 * level / (3.0 * (n - 1)))[:, None]
+    pad = half + 1
+    side = size + 2 * pad
+    base = (
+        (np.clip(yi, -pad + half, size + pad - half - 1) + pad) * side
+        + np.clip(xi, -pad + half, size + pad - half - 1)
+        + pad
+    )
+    offsets = oy * side + ox
+    for a in (img, xi, yi, ok, level, shade, base, offsets, edge):
+        a.setflags(write=False)
+    return _Geometry(corners, front, img, xi, yi, ok, level, shade, base, offsets, edge, pad, side)
+
+
 def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) -> np.ndarray:
     """The isometric picture (size x size x 3 uint8) of an (n, n, n) decision grid.
 
@@ -68,52 +120,40 @@ def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) ->
     if not isinstance(size, (int, np.integer)) or not 64 <= size <= 2048:
         raise ValueError(f"size must be an integer between 64 and 2048, not {size!r}")
     n = fx.shape[0]
-    corners, hidden, front = _segments(size)
-    back = Image.new("RGB", (size, size), _BACKGROUND)
-    for seg in hidden:
-        ImageDraw.Draw(back).line(seg, fill=(200, 200, 200), width=1)
-    img = np.array(back)
-    i, j, k = np.indices(fx.shape).reshape(3, -1)
-    pos = (np.stack([i, j, k]).astype(np.float64) + 0.5) / n
+    geo = _geometry(int(n), int(size))
+    corners, front = geo.corners, geo.front
+    img = geo.back.copy()
     fxf, flf = fx.reshape(-1), fl.reshape(-1)
     diff = fxf != flf
     # faint dots: agreeing target voxels (binary) / non-zero classes
     agree_pos = (~diff) & (fxf != 0)
     if agree_pos.any():
-        x, y = _project(*pos[:, agree_pos], size)
-        xi, yi = np.rint(x).astype(np.int64), np.rint(y).astype(np.int64)
-        ok = (xi >= 0) & (xi < size) & (yi >= 0) & (yi < size)
+        ok = geo.dot_ok[agree_pos]
         faint = (np.array(AGREE_POSITIVE, dtype=np.float64) * 0.7 + np.array(_BACKGROUND) * 0.3).astype(np.uint8)
-        img[yi[ok], xi[ok]] = faint
+        img[geo.dot_y[agree_pos][ok], geo.dot_x[agree_pos][ok]] = faint
     if diff.any():
         if n_classes == 2:
             colour = np.where((fxf[diff] > flf[diff])[:, None], np.array(FIXED_ONLY), np.array(FLOAT_ONLY))
         else:
             colour = np.broadcast_to(np.array(DISAGREE), (int(diff.sum()), 3))
-        p = pos[:, diff]
-        level = (i + j + k)[diff]  # larger is nearer the viewer at (1, 1, 1)
-        x, y = _project(*p, size)
-        cx, cy = np.rint(x).astype(np.int64), np.rint(y).astype(np.int64)
-        half = max(1, int(round(size / (2.3 * n) * 0.6)))
-        off = np.arange(-half, half + 1)
-        ox, oy = (v.reshape(-1) for v in np.meshgrid(off, off))
-        edge = (np.abs(ox) == half) | (np.abs(oy) == half)  # square edges darker: separate voxels
-        shade = (0.6 + 0.4 * level / (3.0 * (n - 1)))[:, None]
+        level = geo.level[diff]
+        base = geo.base[diff]
+        # a square drawn later on exactly the same footprint (the same view ray, nearer)
+        # overwrites all of an earlier one: only the nearest level of each footprint is drawn
+        nearest = np.full(geo.side * geo.side, -1, dtype=np.int64)
+        np.maximum.at(nearest, base, level)
+        keep = level == nearest[base]
+        colour, level, base = colour[keep], level[keep], base[keep]
+        shade = geo.shade[diff][keep]
 
         def packed(rgb: np.ndarray) -> np.ndarray:  # RGB in one uint32: one store per pixel
             c = np.clip(rgb, 0, 255).astype(np.uint32)
             return (c[:, 0] << 16) | (c[:, 1] << 8) | c[:, 2]
 
         inner, rim = packed(colour * shade), packed(colour * shade * 0.78)
-        pad = half + 1
-        side = size + 2 * pad
+        pad, side = geo.pad, geo.side
         canvas = np.full(side * side, 0xFFFFFFFF, dtype=np.uint32)  # "nothing drawn"
-        base = (
-            (np.clip(cy, -pad + half, size + pad - half - 1) + pad) * side
-            + np.clip(cx, -pad + half, size + pad - half - 1)
-            + pad
-        )
-        offsets = oy * side + ox
+        offsets, edge = geo.offsets, geo.edge
         # painter's algorithm by depth level: voxels of one level never cover each other
         order = np.argsort(level, kind="stable")
         bounds = np.flatnonzero(np.diff(level[order])) + 1

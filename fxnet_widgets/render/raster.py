@@ -14,6 +14,8 @@ each pixel's decision, so a test can read the decisions back.
 from __future__ import annotations
 
 import io
+import struct
+import zlib
 from dataclasses import dataclass
 from typing import Any
 
@@ -30,6 +32,7 @@ __all__ = [
     "downscale",
     "MAX_RINGED",
     "ring_mask",
+    "overlay_background",
     "overlay_png",
     "palette_png",
     "png_bytes",
@@ -63,7 +66,49 @@ def png_bytes(codes: Any, compress_level: int = 1) -> bytes:
     return buf.getvalue()
 
 
-def palette_png(index: Any, palette: Any, compress_level: int = 1) -> bytes:
+#: zlib strategies (the deflate stream differs, the decoded pixels do not)
+_Z_DEFAULT, _Z_HUFFMAN_ONLY = -1, 2  # -1: pillow's default
+
+
+def _png_chunk(kind: bytes, data: bytes) -> bytes:
+    return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+
+
+def _indexed_png(idx: np.ndarray, pal: np.ndarray, level: int, strategy: int) -> bytes:
+    """An indexed-colour PNG (colour type 3) of H x W palette indices, per the PNG
+    specification (W3C / ISO/IEC 15948): 1, 2, 4 or 8 bits per pixel (the fewest
+    that hold the palette), rows packed most significant bits first, filter 0.
+    """
+    h, w = idx.shape
+    n = pal.shape[0]
+    depth = 1 if n <= 2 else 2 if n <= 4 else 4 if n <= 16 else 8
+    if depth == 8:
+        rows = idx
+    elif depth == 1:
+        rows = np.packbits(idx, axis=1)  # indices are 0 or 1 here
+    else:
+        per = 8 // depth
+        padded = np.zeros((h, -(-w // per) * per), dtype=np.uint8)
+        padded[:, :w] = idx
+        groups = padded.reshape(h, -1, per)
+        rows = np.zeros(groups.shape[:2], dtype=np.uint8)
+        for i in range(per):
+            rows |= groups[:, :, i] << np.uint8(8 - depth * (i + 1))
+    raw = np.empty((h, rows.shape[1] + 1), dtype=np.uint8)
+    raw[:, 0] = 0  # filter type 0 (none) on every row
+    raw[:, 1:] = rows
+    z = zlib.compressobj(level, zlib.DEFLATED, 15, 8, zlib.Z_DEFAULT_STRATEGY if strategy < 0 else strategy)
+    data = z.compress(raw.tobytes()) + z.flush()
+    return b"".join((
+        b"\x89PNG\r\n\x1a\n",
+        _png_chunk(b"IHDR", struct.pack(">IIBBBBB", w, h, depth, 3, 0, 0, 0)),
+        _png_chunk(b"PLTE", np.ascontiguousarray(pal, dtype=np.uint8).tobytes()),
+        _png_chunk(b"IDAT", data),
+        _png_chunk(b"IEND", b""),
+    ))  # fmt: skip
+
+
+def palette_png(index: Any, palette: Any, compress_level: int = 1, *, _strategy: int = _Z_DEFAULT) -> bytes:
     """PNG bytes of an H x W array of palette indices (< 256) and an (n, 3) uint8 palette."""
     idx = np.asarray(index)
     pal = np.asarray(palette)
@@ -76,10 +121,13 @@ def palette_png(index: Any, palette: Any, compress_level: int = 1) -> bytes:
     lo, hi = int(idx.min()), int(idx.max())
     if lo < 0 or hi >= pal.shape[0]:
         raise ValueError(f"index must be between 0 and {pal.shape[0] - 1}, not {lo if lo < 0 else hi}")
+    level = _check_level(compress_level)
+    if level <= 1:  # live views: written here (packing few-colour pixels in numpy is much faster)
+        return _indexed_png(np.ascontiguousarray(idx, dtype=np.uint8), pal, level, _strategy)
     im = Image.fromarray(np.ascontiguousarray(idx, dtype=np.uint8), mode="P")
     im.putpalette(pal.reshape(-1).tolist())
     buf = io.BytesIO()
-    im.save(buf, format="PNG", compress_level=_check_level(compress_level))
+    im.save(buf, format="PNG", compress_level=_check_level(compress_level), compress_type=_strategy)
     return buf.getvalue()
 
 
@@ -140,8 +188,29 @@ def ring_mask(points: Any, shape: tuple[int, int], radius: int, width: int = 2) 
     return out
 
 
+def overlay_background(codes: Any) -> np.ndarray:
+    """The overlay's dimmed grey background of an H x W x 3 uint8 image: palette indices (uint8).
+
+    It depends on the input only: a live view computes it once per image and
+    passes it to :func:`overlay_png` as ``background``.
+    """
+    img = np.asarray(codes)
+    if img.ndim != 3 or img.shape[2] != 3 or img.dtype != np.uint8:
+        raise ValueError(f"image must be an H x W x 3 uint8 array, not {img.dtype} {img.shape}")
+    # integer luminance (ITU-R BT.601 weights 299/587/114), dimmed to 0..~150
+    lum = img[..., 0].astype(np.uint32) * 299
+    lum += img[..., 1].astype(np.uint32) * 587
+    lum += img[..., 2].astype(np.uint32) * 114
+    lum *= _GREY_LEVELS  # at most 255000 * 64: fits uint32
+    lum //= 1000 * 256
+    out = lum.astype(np.uint8)
+    out.setflags(write=False)
+    return out
+
+
 def overlay_png(
-    codes: Any, fixed: Any, float_: Any, n_classes: int = 2, compress_level: int = 1, *, rings: bool = False
+    codes: Any, fixed: Any, float_: Any, n_classes: int = 2, compress_level: int = 1, *, rings: bool = False,
+    background: np.ndarray | None = None,
 ) -> bytes:
     """The input dimmed to grey with the disagreeing pixels coloured.
 
@@ -153,6 +222,9 @@ def overlay_png(
     width) so that a handful of pixels in a large picture can be found. Rings
     cover agreeing pixels only: every magenta and teal pixel is still exactly
     a disagreement, and every disagreement is still magenta or teal.
+
+    ``background`` is :func:`overlay_background` of ``codes`` when the caller
+    keeps it (computed here otherwise).
     """
     img = np.asarray(codes)
     fx = np.asarray(fixed)
@@ -161,11 +233,13 @@ def overlay_png(
         raise ValueError(f"image must be an H x W x 3 uint8 array, not {img.dtype} {img.shape}")
     if fx.shape != img.shape[:2] or fl.shape != img.shape[:2]:
         raise ValueError(f"decisions must have the image's shape {img.shape[:2]}, not {fx.shape} and {fl.shape}")
-    # integer luminance (ITU-R BT.601 weights 299/587/114), dimmed to 0..~150
-    lum = (
-        img[..., 0].astype(np.uint32) * 299 + img[..., 1].astype(np.uint32) * 587 + img[..., 2].astype(np.uint32) * 114
-    )
-    idx = (lum * _GREY_LEVELS // (1000 * 256)).astype(np.uint8)
+    if background is None:
+        idx = np.array(overlay_background(img))
+    else:
+        if background.shape != img.shape[:2] or background.dtype != np.uint8:
+            raise ValueError(f"background must be the image's H x W uint8 grey index, not {background.dtype} "
+                             f"{background.shape}")  # fmt: skip
+        idx = background.copy()
     differ = fx != fl
     if rings:
         n = int(np.count_nonzero(differ))
@@ -183,7 +257,8 @@ def overlay_png(
     grey = (np.arange(_GREY_LEVELS, dtype=np.uint32) * 150 // (_GREY_LEVELS - 1) + 40).astype(np.uint8)
     marks = np.array([FIXED_ONLY, FLOAT_ONLY, MARK_INNER, MARK_OUTER], dtype=np.uint8)
     pal = np.vstack([np.repeat(grey[:, None], 3, axis=1), marks])
-    return palette_png(idx, pal, compress_level)
+    # the grey background is noise to deflate: Huffman coding alone is faster and here also smaller
+    return palette_png(idx, pal, compress_level, _strategy=_Z_HUFFMAN_ONLY)
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,7 @@ from typing import Any
 import ipywidgets as w
 import traitlets as t
 
-from ..render.raster import MAX_RINGED, decision_mask_png, overlay_png, png_bytes
+from ..render.raster import MAX_RINGED, decision_mask_png, overlay_background, overlay_png, png_bytes
 from .session import Session, SessionResult
 
 __all__ = ["PreviewPanel"]
@@ -66,6 +66,7 @@ class PreviewPanel(w.VBox):
         self._link = t.link((self.full_resolution, "value"), (session, "full_resolution"))
         self.note = w.HTML()
         self._codes: Any = None
+        self._background: Any = None
         self._last: Any = None
         wrap = {"flex_flow": "row wrap", "align_items": "flex-start"}
         rows = [w.HBox(cells, layout=w.Layout(**wrap)),
@@ -85,8 +86,10 @@ class PreviewPanel(w.VBox):
             self._codes = im.codes
             self.input_image.value = png_bytes(im.codes)
             self.float_image.value = decision_mask_png(im.float_, n)
+            self._background = overlay_background(im.codes)
         self.fixed_image.value = decision_mask_png(im.fixed, n)
-        self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n, rings=True)
+        self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n, rings=True,
+                                               background=self._background)  # fmt: skip
         m = im.mismatch
         if m == 0:
             said = "no pixel differs"

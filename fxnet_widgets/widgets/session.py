@@ -34,6 +34,8 @@ import contextlib
 import math
 import os
 import traceback
+import weakref
+from collections import OrderedDict
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from typing import Any
@@ -224,34 +226,13 @@ def exact_sums(emulation: Emulation, layer: int) -> np.ndarray:
     """The exact sums ``s`` (before the accumulator, N x n_out int64) of one layer.
 
     Where no accumulator overflow happened, ``s`` equals the kernel's ``s_A``;
-    otherwise it is recomputed exactly (integers, no rounding) from the layer's
-    integer weights and its input codes: ``s = q_b + u @ q_w.T``.
+    otherwise it differs by the wrap or the clamp (the kernel keeps the exact
+    sums: :meth:`~fxnet_widgets.core.kernel.Emulation.neuron_sums`).
     """
-    return np.stack(_exact_sum_columns(emulation, layer), axis=1).astype(np.int64, copy=False)
-
-
-def _exact_sum_columns(emulation: Emulation, layer: int) -> list[np.ndarray]:
-    """:func:`exact_sums` as one contiguous 1-D array per neuron (fast: long inner loops)."""
-    acc = np.asarray(emulation.acc[layer]).reshape(emulation.n, -1)
-    ov = emulation.events[layer]["acc_overflow"]
-    L = emulation.integer_network.layers[layer]
-    bound = int(np.abs(L.q_w).sum(axis=1).max()) * max(abs(L.in_min), abs(L.in_max)) + int(np.abs(L.q_b).max())
-    dt = np.int32 if bound < 2**31 else np.int64  # no partial sum can leave the type
-    u = None
-    out = []
-    for j in range(L.n_out):
-        if not int(ov[j]):
-            out.append(acc[:, j])
-            continue
-        if u is None:
-            src = emulation.inputs if layer == 0 else np.asarray(emulation.codes[layer - 1]).reshape(emulation.n, -1)
-            u = [np.ascontiguousarray(src[:, i]).astype(dt) for i in range(L.n_in)]
-        s = np.full(emulation.n, int(L.q_b[j]), dtype=dt)
-        for i in range(L.n_in):
-            q = int(L.q_w[j, i])
-            if q:
-                s += u[i] * dt(q)
-        out.append(s)
+    n_out = emulation.integer_network.layers[layer].n_out
+    out = np.empty((emulation.n, n_out), dtype=np.int64)
+    for j in range(n_out):
+        out[:, j] = emulation.neuron_sums(layer, j)
     return out
 
 
@@ -280,18 +261,56 @@ def histogram_edges(lo: int, hi: int, marks: tuple[int, ...], bins: int = 64) ->
     return origin + w * np.arange(n + 1, dtype=np.int64)
 
 
+# histogram counts by (sums array, offset, shift, bins): the kernel hands out the same
+# read-only first-layer sums while the weights stay, and the bins often stay too
+# (weak references: a cached entry never keeps a sums array alive)
+_COUNTS: OrderedDict[tuple[int, int, int, int], tuple[weakref.ref, np.ndarray]] = OrderedDict()
+_COUNTS_SIZE = 32
+
+
+def _bin_counts(emulation: Emulation, layer: int, neuron: int, origin: int, shift: int, n_bins: int) -> np.ndarray:
+    """Counts of ``(s - origin) >> shift`` over one neuron's exact sums ``s`` (all inside the bins)."""
+    d, offset = emulation._neuron_shifted(layer, neuron)
+    off = offset - origin  # s - origin = d + off >= 0
+    key = (id(d), off, shift, n_bins)
+    hit = _COUNTS.get(key)
+    if hit is not None and hit[0]() is d and not d.flags.writeable:
+        _COUNTS.move_to_end(key)
+        return hit[1]
+    counts = _count_bins(emulation, layer, neuron, d, off, origin, shift, n_bins)
+    if not d.flags.writeable:  # read-only: the values behind this identity cannot change
+        counts.setflags(write=False)
+        _COUNTS[key] = (weakref.ref(d), counts)
+        while len(_COUNTS) > _COUNTS_SIZE:
+            _COUNTS.popitem(last=False)
+    return counts
+
+
+def _count_bins(emulation: Emulation, layer: int, neuron: int, d: np.ndarray, off: int, origin: int, shift: int,
+                n_bins: int) -> np.ndarray:  # fmt: skip
+    top = int(emulation.observed_max[layer][neuron]) - origin
+    if top < 2**31 and off >= 0:
+        idx = d.astype(np.int32)
+        if off:
+            idx += np.int32(off)
+    else:
+        idx = d.astype(np.int64) + np.int64(off)
+    if shift:
+        idx >>= shift
+    return np.bincount(idx, minlength=n_bins)[:n_bins]
+
+
 def _neuron_results(network: Network, emus: list[Emulation], bins: int) -> tuple[NeuronResult, ...]:
     intnet = emus[0].integer_network
     out = []
+    live = [e for e in emus if e.n]
     for li, L in enumerate(intnet.layers):
-        sums = [_exact_sum_columns(e, li) for e in emus]
         alo, ahi = signed_range(L.plan.acc_bits)
         acc_edges = (alo, ahi + 1)
         t_edges = _table_edges(L)
         for j in range(L.n_out):
-            cols = [s[j] for s in sums if s[j].shape[0]]
-            dmin = min(int(c.min()) for c in cols) if cols else 0
-            dmax = max(int(c.max()) for c in cols) if cols else 0
+            dmin = min(int(e.observed_min[li][j]) for e in live) if live else 0
+            dmax = max(int(e.observed_max[li][j]) for e in live) if live else 0
             marks = t_edges
             span = max(t_edges[1], dmax + 1) - min(t_edges[0], dmin)
             if acc_edges[1] - acc_edges[0] <= 4 * span:
@@ -299,9 +318,8 @@ def _neuron_results(network: Network, emus: list[Emulation], bins: int) -> tuple
             edges = histogram_edges(dmin, dmax, marks, bins)
             shift = int(edges[1] - edges[0]).bit_length() - 1
             counts = np.zeros(edges.size - 1, dtype=np.int64)
-            for c in cols:
-                idx = (c - edges[0]) >> shift
-                counts += np.bincount(idx, minlength=counts.size)[: counts.size]
+            for e in live:
+                counts += _bin_counts(e, li, j, int(edges[0]), shift, counts.size)
             ev = {
                 name: int(sum(int(e.events[li][name][j]) for e in emus))
                 for name in ("acc_overflow", "table_low", "table_high")

@@ -42,7 +42,7 @@ def check_labels(
     if not (arr.shape == (n,) or (shape is not None and arr.shape == tuple(shape))):
         want = f"({n},)" if shape is None else f"({n},) or {tuple(shape)}"
         raise ValueError(f"{what} must have shape {want} (one per sample), not {arr.shape}")
-    flat = arr.reshape(-1).astype(np.int64)
+    flat = arr.astype(np.int64).reshape(-1)  # one copy (a strided view is not copied twice)
     if flat.size:
         lo, hi = int(flat.min()), int(flat.max())
         if lo < 0 or hi >= n_classes:
@@ -126,6 +126,36 @@ class ErrorMetrics:
         return "\n".join(lines)
 
 
+_LUT_CODES = 1 << 16  # output code ranges up to this size go through a value table
+
+
+def _abs_errors(result: Emulation, last: Any, out_frac: int) -> np.ndarray:
+    """``|code / 2**out_frac - float output|`` as an (N, n_out) float64 array.
+
+    Each code's real value comes from a table over the code range (the same
+    ``ldexp`` per value, so the same float64 bits), one output column at a time.
+    """
+    n = result.n
+    ref = np.asarray(result.float_out, dtype=np.float64).reshape(n, -1)
+    lo, hi = int(last.code_min), int(last.code_max)
+    n_out = ref.shape[1]
+    if hi - lo >= _LUT_CODES or n == 0:
+        fixed = np.ldexp(np.asarray(result.out_codes, dtype=np.float64).reshape(n, -1), -out_frac)
+        return np.abs(fixed - ref)
+    table = np.ldexp(np.arange(lo, hi + 1, dtype=np.float64), -out_frac)
+    li = len(result.integer_network.layers) - 1
+    err = np.empty((n, n_out), dtype=np.float64)
+    for j in range(n_out):
+        codes = result.neuron_codes(li, j)
+        col = table.take(codes if lo == 0 else codes.astype(np.int64) - lo)
+        np.subtract(col, ref[:, j], out=col)
+        np.abs(col, out=col)
+        if n_out == 1:
+            return col.reshape(n, 1)
+        err[:, j] = col
+    return err
+
+
 def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
     """Error metrics of an emulation result against float (and against ``labels``).
 
@@ -148,9 +178,7 @@ def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
     n = result.n
     last = result.integer_network.layers[-1]
     out_frac = int(last.out_frac)
-    fixed = np.ldexp(np.asarray(result.out_codes, dtype=np.float64).reshape(n, -1), -out_frac)
-    ref = np.asarray(result.float_out, dtype=np.float64).reshape(n, -1)
-    err = np.abs(fixed - ref)
+    err = _abs_errors(result, last, out_frac)
     if n:
         mx, mn = err.max(axis=0), err.mean(axis=0)
     else:
@@ -158,7 +186,10 @@ def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
     dec = np.asarray(result.decisions).reshape(-1)
     fdec = np.asarray(result.float_decisions).reshape(-1)
     mismatch = int(np.count_nonzero(dec != fdec))
-    per_sample = err.max(axis=1) if err.shape[1] else np.zeros(n)
+    if err.shape[1] == 1:
+        per_sample = err.reshape(n)  # the largest of one value is the value itself
+    else:
+        per_sample = err.max(axis=1) if err.shape[1] else np.zeros(n)
     per_sample = per_sample.reshape(result.shape) if result.shape is not None else per_sample
     per_sample.setflags(write=False)
     accuracy = float_accuracy = None
@@ -168,7 +199,9 @@ def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
         lab = check_labels(labels, n, result.shape, k)
         accuracy = float(np.count_nonzero(dec == lab) / n) if n else 0.0
         float_accuracy = float(np.count_nonzero(fdec == lab) / n) if n else 0.0
-        cm = np.bincount(lab * k + dec, minlength=k * k).reshape(k, k)
+        pair = lab * k
+        pair += dec
+        cm = np.bincount(pair, minlength=k * k).reshape(k, k)
         confusion = tuple(tuple(int(v) for v in row) for row in cm)
     scale = 2.0**out_frac
     return ErrorMetrics(
