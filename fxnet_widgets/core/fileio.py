@@ -237,24 +237,33 @@ def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) 
     return obj
 
 
+def read_npy_header(fh: Any) -> tuple[tuple[int, ...], np.dtype] | None:
+    """Shape and dtype from a ``.npy`` header (format 1.0 or 2.0; None for other versions)."""
+    fmt = np.lib.format
+    version = fmt.read_magic(fh)
+    if version == (1, 0):
+        shape, _, dtype = fmt.read_array_header_1_0(fh)
+    elif version == (2, 0):
+        shape, _, dtype = fmt.read_array_header_2_0(fh)
+    else:
+        return None
+    return shape, dtype
+
+
 def _check_npy_size(name: str) -> None:
     """Refuse a ``.npy`` whose header declares more data than the file holds.
 
     Without this, numpy allocates the declared size first (a 20-byte header can
     ask for terabytes). Archives and other files are left to ``np.load``.
     """
-    fmt = np.lib.format
     with open(name, "rb") as fh:
         if fh.read(6) != b"\x93NUMPY":
             return
         fh.seek(0)
-        version = fmt.read_magic(fh)
-        if version == (1, 0):
-            shape, _, dtype = fmt.read_array_header_1_0(fh)
-        elif version == (2, 0):
-            shape, _, dtype = fmt.read_array_header_2_0(fh)
-        else:
+        header = read_npy_header(fh)
+        if header is None:
             return
+        shape, dtype = header
         offset = fh.tell()
         size = os.fstat(fh.fileno()).st_size
     if dtype.hasobject:

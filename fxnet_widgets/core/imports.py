@@ -52,7 +52,7 @@ from typing import Any
 
 import numpy as np
 
-from .fileio import FileFormatError, atomic_write_bytes
+from .fileio import FileFormatError, atomic_write_bytes, read_npy_header
 from .network import ACTIVATIONS, Network
 
 __all__ = ["from_sklearn", "from_arrays", "load_npz", "save_npz", "TRAINED_ON"]
@@ -228,13 +228,10 @@ def _check_npz_sizes(name: str) -> None:
             if not info.filename.endswith(".npy"):
                 continue
             with zf.open(info) as fh:
-                version = np.lib.format.read_magic(fh)
-                if version == (1, 0):
-                    shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
-                elif version == (2, 0):
-                    shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
-                else:
-                    continue
+                header = read_npy_header(fh)
+            if header is None:
+                continue
+            shape, dtype = header
             need = math.prod(shape) * dtype.itemsize
             if need > info.file_size:
                 raise ValueError(f"member {info.filename} declares {need} bytes but holds {info.file_size}")

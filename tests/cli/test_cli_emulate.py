@@ -6,24 +6,15 @@ import sys
 
 import numpy as np
 import pytest
+from fxhand import hand_files
 
 import fxnet_widgets as fw
 from fxnet_widgets.cli import main
-from fxnet_widgets.core.images import save_png
 
 
 @pytest.fixture()
 def files(tmp_path):
-    net = fw.Network.from_layers(
-        [([[0.5, -0.25, 0.125], [1.0, 0.0, -1.0], [-0.75, 0.5, 0.25]], [0.1, -0.2, 0.3], "sigmoid"),
-         ([[1.5, -2.0, 0.5]], [0.25], "sigmoid")]
-    )  # fmt: skip
-    plan = fw.Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=18, table_bits=14, table_frac=9, out_bits=8)
-    net.save(tmp_path / "net.json")
-    plan.save(tmp_path / "plan.json")
-    img = np.random.default_rng(0).integers(0, 256, (6, 7, 3), dtype=np.uint8)
-    save_png(tmp_path / "img.png", img)
-    np.save(tmp_path / "codes.npy", img.reshape(-1, 3).astype(np.int64))
+    net, plan, img = hand_files(tmp_path)
     return tmp_path, net, plan, img
 
 
@@ -96,7 +87,8 @@ def test_bad_input_one_line_exit_2(files, mutate, expect):
 
 def test_missing_input_and_bad_args(files, capsys):
     d, *_ = files
-    assert main(["emulate", str(d / "net.json"), str(d / "plan.json"), str(d / "nope.png"), "-o", str(d / "x.npz")]) == 2
+    args = [str(d / "net.json"), str(d / "plan.json"), str(d / "nope.png"), "-o", str(d / "x.npz")]
+    assert main(["emulate", *args]) == 2
     assert capsys.readouterr().err.strip() == f"fxnet: {d / 'nope.png'}: no such file"
     assert main(["emulate", str(d / "net.json")]) == 2
     err = capsys.readouterr().err.strip()

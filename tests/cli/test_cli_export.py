@@ -4,25 +4,16 @@ import json
 
 import numpy as np
 import pytest
+from fxhand import hand_files
 
 import fxnet_widgets as fw
 from fxnet_widgets.cli import main
 from fxnet_widgets.core.export import read_export
-from fxnet_widgets.core.images import save_png
 
 
 @pytest.fixture()
 def files(tmp_path):
-    net = fw.Network.from_layers(
-        [([[0.5, -0.25, 0.125], [1.0, 0.0, -1.0], [-0.75, 0.5, 0.25]], [0.1, -0.2, 0.3], "sigmoid"),
-         ([[1.5, -2.0, 0.5]], [0.25], "sigmoid")]
-    )  # fmt: skip
-    plan = fw.Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=18, table_bits=10, table_frac=6, out_bits=8)
-    net.save(tmp_path / "net.json")
-    plan.save(tmp_path / "plan.json")
-    img = np.random.default_rng(0).integers(0, 256, (6, 7, 3), dtype=np.uint8)
-    save_png(tmp_path / "img.png", img)
-    np.save(tmp_path / "codes.npy", img.reshape(-1, 3).astype(np.int64))
+    net, plan, img = hand_files(tmp_path, table_bits=10, table_frac=6)
     return tmp_path, net, plan, img
 
 

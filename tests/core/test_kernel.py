@@ -6,6 +6,7 @@ import math
 import fxref
 import numpy as np
 import pytest
+from fxhand import B1, B2, W1, W2, hand_network
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -13,14 +14,9 @@ import fxnet_widgets as fw
 from fxnet_widgets.core import kernel
 from fxnet_widgets.core.formats import ROUNDINGS
 
-W1 = [[0.5, -0.25, 0.125], [1.0, 0.0, -1.0], [-0.75, 0.5, 0.25]]
-B1 = [0.1, -0.2, 0.3]
-W2 = [[1.5, -2.0, 0.5]]
-B2 = [0.25]
-
 
 def hand_net():
-    return fw.Network.from_layers([(W1, B1, "sigmoid"), (W2, B2, "sigmoid")], classes=["other", "ripe"])
+    return hand_network(classes=["other", "ripe"])
 
 
 def hand_plan(net, **kw):
@@ -262,7 +258,7 @@ def test_kernel_matches_reference_on_large_batches():
 def test_left_shift_and_extreme_fracs():
     # k < 0 (table_frac above the accumulator's frac) and shifts beyond 63 bits
     net = fw.Network.from_layers([([[1.0, -1.0]], [0.0], "identity")], input_names=["a", "b"])
-    for out_frac, expect in [(40, None), (-40, None)]:
+    for out_frac in (40, -40):  # k = 8 + 2 - 40 = -30 (left shift) and k = 50 (right shift)
         plan = fw.Plan.uniform(net, weight_bits=4, weight_frac=2, acc_bits=20, out_bits=8, out_frac=out_frac)
         codes = [[0, 0], [255, 0], [0, 255], [3, 1]]
         ref = fxref.run(net.to_dict(), plan.to_dict(), codes)

@@ -15,6 +15,7 @@ import json
 
 import numpy as np
 from _hardening_support import count, examples, scratch_dir
+from fxhand import hand_network
 from hypothesis import given, note, settings
 from hypothesis import strategies as st
 
@@ -23,10 +24,7 @@ from fxnet_widgets.cli import SUBCOMMANDS, main
 from fxnet_widgets.core.images import save_png
 
 WORK = scratch_dir("fxnet-fuzz-cli-")
-NET = fw.Network.from_layers(
-    [([[0.5, -0.25, 0.125], [1.0, 0.0, -1.0], [-0.75, 0.5, 0.25]], [0.1, -0.2, 0.3], "sigmoid"),
-     ([[1.5, -2.0, 0.5]], [0.25], "sigmoid")], classes=["other", "ripe"],
-)  # fmt: skip
+NET = hand_network(classes=["other", "ripe"])
 PLAN = fw.Plan.uniform(NET, weight_bits=8, weight_frac=5, acc_bits=18, table_bits=10, table_frac=6, out_bits=8)
 NET.save(WORK / "net.json")
 PLAN.save(WORK / "plan.json")
