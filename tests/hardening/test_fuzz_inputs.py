@@ -110,7 +110,9 @@ def test_truncated_and_flipped_images(case):
         check_message(exc, f"{path}: ")
         assert isinstance(exc, FileFormatError)
         return
-    check_image(img, w, h)
+    # a damaged file that still decodes may change its size (a GIF frame offset past the logical
+    # screen grows pillow's canvas): only an untouched file must keep its declared size
+    check_image(img, w, h) if data == good else check_image(img)
     if data == good and FORMATS[fmt][1] and mode == "RGB":
         # an untouched lossless RGB file gives back exactly its pixels
         assert np.array_equal(img.codes, rgb)
