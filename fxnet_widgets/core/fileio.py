@@ -36,6 +36,8 @@ __all__ = [
     "atomic_writer",
     "load_json",
     "load_npy",
+    "load_npz_arrays",
+    "read_npy_header",
     "dumps_json",
     "key_text",
 ]
@@ -275,24 +277,72 @@ def _check_npy_size(name: str) -> None:
         )
 
 
-def load_npy(path: str | os.PathLike[str]) -> np.ndarray:
-    """Read a ``.npy`` array without pickle; errors name the file."""
-    name = os.fspath(path)
+MAX_NPZ_BYTES = 256 * 1024 * 1024
+
+# what np.load raises on a damaged file (SyntaxError, TokenError: a damaged header dictionary;
+# NotImplementedError: an unknown zip compression method)
+_NP_LOAD_ERRORS = (ValueError, OSError, EOFError, zipfile.BadZipFile, NotImplementedError, SyntaxError,
+                   tokenize.TokenError)  # fmt: skip
+
+
+def _check_npz_sizes(name: str) -> None:
+    """Refuse an archive whose members declare more data than they hold (or than the bound)."""
+    if not zipfile.is_zipfile(name):
+        return
+    with zipfile.ZipFile(name) as zf:
+        total = 0
+        for info in zf.infolist():
+            total += info.file_size
+            if total > MAX_NPZ_BYTES:
+                raise ValueError(f"the archive unpacks to more than {MAX_NPZ_BYTES} bytes")
+            if not info.filename.endswith(".npy"):
+                continue
+            with zf.open(info) as fh:
+                header = read_npy_header(fh)
+            if header is None:
+                continue
+            shape, dtype = header
+            need = math.prod(shape) * dtype.itemsize
+            if need > info.file_size:
+                raise ValueError(f"member {info.filename} declares {need} bytes but holds {info.file_size}")
+
+
+def _np_load(name: str, what: str) -> Any:
+    """``np.load`` without pickle, sizes checked first; every failure is one line naming the file."""
     try:
         _check_npy_size(name)
-        arr = np.load(name, allow_pickle=False)
+        _check_npz_sizes(name)
+        return np.load(name, allow_pickle=False)
     except FileNotFoundError:
         raise FileFormatError(f"{name}: no such file") from None
     except IsADirectoryError:
         raise FileFormatError(f"{name}: is a directory, not a file") from None
     except MemoryError:
-        raise FileFormatError(
-            f"{name}: not a readable .npy array (its header declares more data than fits in memory)"
-        ) from None
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile, SyntaxError, tokenize.TokenError) as exc:
-        # SyntaxError and TokenError: a damaged header dictionary
+        raise FileFormatError(f"{name}: not {what} (its header declares more data than fits in memory)") from None
+    except _NP_LOAD_ERRORS as exc:
         msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise FileFormatError(f"{name}: not a readable .npy array ({msg})") from None
+        raise FileFormatError(f"{name}: not {what} ({msg})") from None
+
+
+def load_npy(path: str | os.PathLike[str]) -> np.ndarray:
+    """Read a ``.npy`` array without pickle; errors name the file."""
+    name = os.fspath(path)
+    arr = _np_load(name, "a readable .npy array")
     if not isinstance(arr, np.ndarray):
+        arr.close()
         raise FileFormatError(f"{name}: expected one .npy array, not an archive")
     return arr
+
+
+def load_npz_arrays(path: str | os.PathLike[str]) -> dict[str, np.ndarray]:
+    """Every array of an ``.npz`` archive, without pickle and with bounded sizes; errors name the file."""
+    name = os.fspath(path)
+    archive = _np_load(name, "a readable .npz archive")
+    if isinstance(archive, np.ndarray):
+        raise FileFormatError(f"{name}: expected an .npz archive of arrays, not one .npy array")
+    try:
+        with archive:
+            return {k: archive[k] for k in archive.files}
+    except (*_NP_LOAD_ERRORS, MemoryError) as exc:
+        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise FileFormatError(f"{name}: broken .npz archive ({msg})") from None

@@ -43,16 +43,14 @@ Examples
 from __future__ import annotations
 
 import io
-import math
 import os
 import re
-import zipfile
 from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
 
-from .fileio import FileFormatError, atomic_write_bytes, read_npy_header
+from .fileio import FileFormatError, atomic_write_bytes, load_npz_arrays
 from .network import ACTIVATIONS, Network
 
 __all__ = ["from_sklearn", "from_arrays", "load_npz", "save_npz", "TRAINED_ON"]
@@ -212,52 +210,10 @@ def _str(arr: np.ndarray, key: str, name: str) -> str:
     return str(arr)
 
 
-MAX_NPZ_BYTES = 256 * 1024 * 1024
-
-
-def _check_npz_sizes(name: str) -> None:
-    """Refuse an archive whose members declare more data than they hold (or than the bound)."""
-    if not zipfile.is_zipfile(name):
-        return
-    with zipfile.ZipFile(name) as zf:
-        total = 0
-        for info in zf.infolist():
-            total += info.file_size
-            if total > MAX_NPZ_BYTES:
-                raise ValueError(f"the archive unpacks to more than {MAX_NPZ_BYTES} bytes")
-            if not info.filename.endswith(".npy"):
-                continue
-            with zf.open(info) as fh:
-                header = read_npy_header(fh)
-            if header is None:
-                continue
-            shape, dtype = header
-            need = math.prod(shape) * dtype.itemsize
-            if need > info.file_size:
-                raise ValueError(f"member {info.filename} declares {need} bytes but holds {info.file_size}")
-
-
 def load_npz(path: str | os.PathLike[str]) -> Network:
     """Read a network from an ``.npz`` of arrays (keys in the module text; no pickle)."""
     name = os.fspath(path)
-    try:
-        _check_npz_sizes(name)
-        archive = np.load(name, allow_pickle=False)
-    except FileNotFoundError:
-        raise FileFormatError(f"{name}: no such file") from None
-    except IsADirectoryError:
-        raise FileFormatError(f"{name}: is a directory, not a file") from None
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile, NotImplementedError, MemoryError, SyntaxError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise FileFormatError(f"{name}: not a readable .npz archive ({msg})") from None
-    if isinstance(archive, np.ndarray):
-        raise FileFormatError(f"{name}: expected an .npz archive of arrays, not one .npy array")
-    try:
-        with archive:
-            arrays = {k: archive[k] for k in archive.files}
-    except (ValueError, OSError, EOFError, zipfile.BadZipFile, NotImplementedError, MemoryError, SyntaxError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise FileFormatError(f"{name}: broken .npz archive ({msg})") from None
+    arrays = load_npz_arrays(name)
     layers: dict[int, dict[str, np.ndarray]] = {}
     for key, arr in arrays.items():
         m = _NPZ_LAYER.match(key)

@@ -195,7 +195,8 @@ class IntegerLayer:
             f"accumulator {q_notation(p.acc_bits, self.acc_frac)} {p.acc_overflow}, "
         )
         if self.table is not None:
-            s += f"table {2 ** p.table_bits} x {p.out_bits} b (index {q_notation(p.table_bits, p.table_frac)}, shift {self.shift}), "
+            index = q_notation(p.table_bits, p.table_frac)
+            s += f"table {2 ** p.table_bits} x {p.out_bits} b (index {index}, shift {self.shift}), "
         else:
             s += f"shift {self.shift}, "
         s += f"output {q_notation(p.out_bits, self.out_frac, self.out_signed)}"
@@ -501,7 +502,8 @@ def _prepare(codes: Any, bits: int, n_in: int) -> _Prepared:
                 pairs.append((i, i + 1, idx))
             if n_in % 2:
                 singles.append(n_in - 1)
-        flat.setflags(write=False) if flat.base is None else None
+        if flat.base is None:
+            flat.setflags(write=False)
         return _Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]))
 
     return _INPUT_CACHE.get(key, make)
@@ -518,7 +520,9 @@ def _offset_dtype(span: int) -> type:
     return np.int32 if span < (1 << 31) else np.int64
 
 
-def _layer_sums(layer: IntegerLayer, prep: _Prepared | None, prev_codes: np.ndarray | None, bits: int) -> list[np.ndarray]:
+def _layer_sums(
+    layer: IntegerLayer, prep: _Prepared | None, prev_codes: np.ndarray | None, bits: int
+) -> list[np.ndarray]:
     """Per neuron, the exact sum minus ``sum_min`` (1-D arrays, non-negative)."""
     sums = []
     q_w = layer.q_w
@@ -578,7 +582,8 @@ class _LayerOut:
     """One layer's outputs, neurons along the first axis (lazy where it pays)."""
 
     def __init__(self, layer: IntegerLayer, shifted: list[np.ndarray], acc_direct: list[Any],
-                 codes: np.ndarray, events: dict[str, np.ndarray]) -> None:
+                 codes: np.ndarray, events: dict[str, np.ndarray],
+                 observed: tuple[np.ndarray, np.ndarray]) -> None:
         self.layer = layer
         self._shifted = shifted  # exact sum minus sum_min, per neuron
         # s_A where it differs from the exact sum (an array, or a look-up table and its
@@ -587,7 +592,7 @@ class _LayerOut:
         self.codes = codes  # (n_out, N)
         self.events = events
         self._acc: np.ndarray | None = None
-        self._range: tuple[np.ndarray, np.ndarray] | None = None
+        self.observed = observed  # per neuron, the min and max exact sum on the data
 
     @property
     def acc(self) -> np.ndarray:
@@ -595,8 +600,6 @@ class _LayerOut:
         if self._acc is None:
             L = self.layer
             alo, ahi = signed_range(L.plan.acc_bits)
-            dt = _smallest_int(min(alo, min(L.sum_min)), max(ahi, max(L.sum_max)))
-            dt = np.int64 if dt == np.int64 else np.int32 if np.dtype(dt).itemsize >= 4 else dt
             n = self.codes.shape[1]
             out = np.empty((L.n_out, n), dtype=_smallest_int(min(min(L.sum_min), alo), max(max(L.sum_max), ahi)))
             for j in range(L.n_out):
@@ -610,20 +613,6 @@ class _LayerOut:
             out.setflags(write=False)
             self._acc = out
         return self._acc
-
-    @property
-    def observed(self) -> tuple[np.ndarray, np.ndarray]:
-        """Per neuron, the min and max exact sum on the data."""
-        if self._range is None:
-            L = self.layer
-            if self.codes.shape[1] == 0:
-                z = np.zeros(L.n_out, dtype=np.int64)
-                self._range = (z, z)
-            else:
-                mn = np.array([int(a.min()) + L.sum_min[j] for j, a in enumerate(self._shifted)], dtype=np.int64)
-                mx = np.array([int(a.max()) + L.sum_min[j] for j, a in enumerate(self._shifted)], dtype=np.int64)
-                self._range = (mn, mx)
-        return self._range
 
 
 def _run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> _LayerOut:
@@ -678,9 +667,7 @@ def _run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> _LayerOut:
     events["weight_clip"] = layer.weight_clip
     events["bias_clip"] = layer.bias_clip
     codes.setflags(write=False)
-    res = _LayerOut(layer, shifted, acc_direct, codes, events)
-    res._range = (obs_min, obs_max)
-    return res
+    return _LayerOut(layer, shifted, acc_direct, codes, events, (obs_min, obs_max))
 
 
 # ---------------------------------------------------------------------------------

@@ -268,7 +268,9 @@ class Network:
         if not isinstance(names, (list, tuple)) or not all(isinstance(n, str) for n in names):
             raise TypeError(f"input.names must be a list of strings, not {_short(names)}")
         if len(names) != n_in:
-            raise ValueError(f"input.names must have {n_in} entries (the columns of layers[0].weights), not {len(names)}")
+            raise ValueError(
+                f"input.names must have {n_in} entries (the columns of layers[0].weights), not {len(names)}"
+            )
         out = doc.get("output", {})
         if not isinstance(out, dict):
             raise TypeError(f"output must be an object, not {_short(out)}")
@@ -291,7 +293,8 @@ class Network:
         if not np.isfinite(thr):
             raise ValueError(f"output.threshold must be finite, not {thr!r}")
         net = cls(tuple(layers), tuple(names), int(bits), scale, tuple(classes), float(thr))
-        object.__setattr__(net, "digest", hashlib.blake2b(dumps_json(net.to_dict()).encode(), digest_size=16).hexdigest())
+        digest = hashlib.blake2b(dumps_json(net.to_dict()).encode(), digest_size=16).hexdigest()
+        object.__setattr__(net, "digest", digest)
         return net
 
     @classmethod
@@ -338,7 +341,8 @@ class Network:
 
     def __repr__(self) -> str:
         acts = "-".join(L.activation for L in self.layers)
-        return f"<Network {'-'.join(map(str, self.shape))} {acts}, inputs {self.input_bits} b {self.input_scale}, digest {self.digest[:8]}>"
+        shape = "-".join(map(str, self.shape))
+        return f"<Network {shape} {acts}, inputs {self.input_bits} b {self.input_scale}, digest {self.digest[:8]}>"
 
     # -- properties ---------------------------------------------------------------
     @property
