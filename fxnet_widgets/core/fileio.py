@@ -40,6 +40,8 @@ __all__ = [
     "read_npy_header",
     "dumps_json",
     "key_text",
+    "current_umask",
+    "first_line",
 ]
 
 MAX_JSON_BYTES = 64 * 1024 * 1024
@@ -66,7 +68,7 @@ def atomic_writer(path: str | os.PathLike[str], write: Callable[[Any], None], mo
     remove_stale_temporaries(directory, path.name)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.{os.getpid()}.", suffix=".tmp", dir=directory)
     try:
-        os.fchmod(fd, 0o666 & ~_umask())  # the permissions an ordinary open() would give
+        os.fchmod(fd, 0o666 & ~current_umask())  # the permissions an ordinary open() would give
         with os.fdopen(fd, mode) as fh:
             write(fh)
             fh.flush()
@@ -114,10 +116,17 @@ def _process_alive(pid: int) -> bool:
     return True
 
 
-def _umask() -> int:
+def current_umask() -> int:
+    """The process's file-creation mask (read by setting and restoring it)."""
     mask = os.umask(0)
     os.umask(mask)
     return mask
+
+
+def first_line(exc: BaseException) -> str:
+    """The first line of an exception's message, or its type name: for one-line errors."""
+    text = str(exc)
+    return text.splitlines()[0] if text.strip() else type(exc).__name__
 
 
 def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
@@ -320,7 +329,7 @@ def _np_load(name: str, what: str) -> Any:
     except MemoryError:
         raise FileFormatError(f"{name}: not {what} (its header declares more data than fits in memory)") from None
     except _NP_LOAD_ERRORS as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        msg = first_line(exc)
         raise FileFormatError(f"{name}: not {what} ({msg})") from None
 
 
@@ -344,5 +353,5 @@ def load_npz_arrays(path: str | os.PathLike[str]) -> dict[str, np.ndarray]:
         with archive:
             return {k: archive[k] for k in archive.files}
     except (*_NP_LOAD_ERRORS, MemoryError) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        msg = first_line(exc)
         raise FileFormatError(f"{name}: broken .npz archive ({msg})") from None

@@ -20,7 +20,7 @@ from typing import IO, Any
 import numpy as np
 from PIL import Image, ImageOps, UnidentifiedImageError
 
-from .fileio import FileFormatError, atomic_write_bytes
+from .fileio import FileFormatError, atomic_write_bytes, first_line
 
 __all__ = ["RGBImage", "read_image", "image_to_png_bytes", "save_png", "MAX_IMAGE_PIXELS"]
 
@@ -124,8 +124,7 @@ def read_image(source: str | os.PathLike[str] | IO[bytes]) -> RGBImage:
     except UnidentifiedImageError:
         raise FileFormatError(f"{name}: not an image file pillow can read") from None
     except (OSError, ValueError, SyntaxError, EOFError, struct.error) as exc:
-        msg = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise FileFormatError(f"{name}: broken or truncated image ({msg})") from None
+        raise FileFormatError(f"{name}: broken or truncated image ({first_line(exc)})") from None
     if codes.ndim != 3 or codes.shape[2] != 3 or codes.shape[0] == 0 or codes.shape[1] == 0:
         raise FileFormatError(f"{name}: image has no pixels")
     codes.setflags(write=False)

@@ -17,15 +17,9 @@ import tempfile
 from collections.abc import Callable
 from pathlib import Path
 
-from ..fileio import remove_stale_temporaries
+from ..fileio import current_umask, remove_stale_temporaries
 
 __all__ = ["write_directory"]
-
-
-def _umask() -> int:
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
 
 
 def write_directory(target: str | os.PathLike[str], build: Callable[[Path], None], *, force: bool = False) -> Path:
@@ -56,7 +50,7 @@ def write_directory(target: str | os.PathLike[str], build: Callable[[Path], None
     tmp = Path(tempfile.mkdtemp(prefix=f".{target.name}.{os.getpid()}.", suffix=".partial", dir=parent))
     try:
         build(tmp)
-        os.chmod(tmp, 0o777 & ~_umask())
+        os.chmod(tmp, 0o777 & ~current_umask())
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
