@@ -405,33 +405,34 @@ def post_accumulate(layer: IntegerLayer, s: np.ndarray, lo: int | None = None, h
     assert hi is not None
     alo, ahi = signed_range(p.acc_bits)
     ov = None
+    s_a = s
     if lo < alo or hi > ahi:
         s64 = s.astype(np.int64, copy=False)
         ov = (s64 < alo) | (s64 > ahi)
         if p.acc_overflow == "wrap":
             mask = np.int64((1 << p.acc_bits) - 1)
             s_a = ((s64 - np.int64(alo)) & mask) + np.int64(alo)
+            lo, hi = alo, ahi
         else:
             s_a = np.clip(s64, alo, ahi)
-        lo, hi = max(lo, alo), min(hi, ahi)
-        if p.acc_overflow == "wrap":
-            lo, hi = alo, ahi
+            lo, hi = max(lo, alo), min(hi, ahi)
         s_a = s_a.astype(_smallest_int(alo, ahi), copy=False)
-    else:
-        s_a = s
     k = layer.shift
     ilo, ihi = layer.index_min, layer.index_max
-    if k > 0:
-        a = shift_round(s_a, k, p.index_round)
-        a_lo = int(shift_round(np.array([lo]), k, p.index_round)[0])
-        a_hi = int(shift_round(np.array([hi]), k, p.index_round)[0])
-    elif k == 0:
-        a, a_lo, a_hi = s_a, lo, hi
+    low = high = None
+    if k >= 0:
+        if k > 0:
+            a = shift_round(s_a, k, p.index_round)
+            a_lo, a_hi = (int(v) for v in shift_round(np.array([lo, hi]), k, p.index_round))
+        else:
+            a, a_lo, a_hi = s_a, lo, hi
+        if a_lo < ilo or a_hi > ihi:
+            a = np.asarray(a, dtype=np.int64)
+            low, high = a < ilo, a > ihi
+            a = np.clip(a, ilo, ihi)
     else:
         m = -k
-        a_lo, a_hi = lo << m, hi << m
-        low = high = None
-        if a_lo >= ilo and a_hi <= ihi:
+        if (lo << m) >= ilo and (hi << m) <= ihi:
             a = s_a.astype(np.int64) << np.int64(m)
         else:
             # decide the clamp in the unshifted domain so the shift cannot overflow
@@ -441,14 +442,6 @@ def post_accumulate(layer: IntegerLayer, s: np.ndarray, lo: int | None = None, h
             low, high = s64 < c_lo, s64 > c_hi
             a = np.clip(s64, c_lo, c_hi) << np.int64(m)
             a = np.where(low, ilo, np.where(high, ihi, a))
-            a_lo, a_hi = ilo, ihi
-    if k >= 0:
-        low = high = None
-        if a_lo < ilo or a_hi > ihi:
-            a = np.asarray(a, dtype=np.int64)
-            low = a < ilo
-            high = a > ihi
-            a = np.clip(a, ilo, ihi)
     if layer.table is not None:
         idx = np.asarray(a) - np.int64(ilo) if ilo != 0 else a  # int64: ilo may not fit a's dtype
         codes = layer.table[idx]
