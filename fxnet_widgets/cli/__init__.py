@@ -27,6 +27,7 @@ SUBCOMMANDS = [
     "train",
     "demo",
     "report",
+    "lab",
 ]
 
 

@@ -452,3 +452,28 @@ class ExplorerPage:
 def explorer_page() -> Callable[..., ExplorerPage]:
     """``explorer_page(page, root=".fxnet-explorer")`` -> :class:`ExplorerPage`."""
     return ExplorerPage
+
+
+@pytest.fixture
+def launched_lab(tmp_path: Path, chromium_available: Any) -> Iterator[Server]:
+    """JupyterLab started by ``fxnet lab`` (the README's first command) from the project's top directory."""
+    settings, workspaces = tmp_path / "settings", tmp_path / "workspaces"
+    (settings / "@jupyterlab" / "apputils-extension").mkdir(parents=True)
+    (settings / "@jupyterlab" / "apputils-extension" / "notification.jupyterlab-settings").write_text(
+        json.dumps({"fetchNews": "false", "checkForUpdates": False})
+    )
+    workspaces.mkdir()
+    port = free_port()
+    argv = [sys.executable, "-m", "fxnet_widgets.cli", "lab", "--no-browser", f"--port={port}", "--",
+            "--ServerApp.ip=127.0.0.1", "--ServerApp.port_retries=0", "--IdentityProvider.token=",
+            "--ServerApp.password=", "--LabApp.news_url=None", f"--LabApp.user_settings_dir={settings}",
+            f"--LabApp.workspaces_dir={workspaces}"]  # fmt: skip
+    env = _server_env(tmp_path)
+    env["JUPYTERLAB_SETTINGS_DIR"] = str(settings)
+    env["JUPYTERLAB_WORKSPACES_DIR"] = str(workspaces)
+    server = Server("fxnet lab", argv, port, tmp_path / "lab.log", ROOT, env)
+    try:
+        server.wait_ready("/static/favicons/favicon.ico", timeout=90)
+        yield server
+    finally:
+        server.stop()
