@@ -22,8 +22,6 @@ from .core import (
     q_notation,
     quantise,
 )
-from .core.demo import build_demo, suggest_plan, write_demo
-from .core.images import RGBImage, read_image
 from .core.analysis import (
     VIDEO_FORMATS,
     Attribution,
@@ -43,6 +41,9 @@ from .core.analysis import (
     throughput,
     tune,
 )
+from .core.demo import build_demo, suggest_plan, write_demo
+from .core.export import export
+from .core.images import RGBImage, read_image
 from .core.imports import from_arrays, from_sklearn, load_npz, save_npz
 from .core.labels import (
     LabelledPixels,
@@ -54,7 +55,6 @@ from .core.labels import (
     sample_pixels,
 )
 from .core.scenes import Scene, make_scene
-from .core.export import export
 from .core.training import Training, TrainingReport, fit, train
 
 __version__ = "0.1.0"

@@ -1,6 +1,8 @@
 """Shared test settings: hypothesis profiles (bounded by default; ``--hypothesis-profile=long``)."""
 
 import os
+import sys
+from pathlib import Path
 
 from hypothesis import HealthCheck, settings
 
@@ -12,9 +14,6 @@ settings.register_profile(
 )
 settings.register_profile("long", max_examples=5000, deadline=None, suppress_health_check=list(HealthCheck))
 settings.load_profile(os.environ.get("FXNET_HYPOTHESIS_PROFILE", "ci" if os.environ.get("CI") else "default"))
-
-import sys
-from pathlib import Path
 
 # test helpers shared by several test folders (e.g. the slow contract reference `fxref`)
 sys.path.insert(0, str(Path(__file__).parent / "_support"))

@@ -52,7 +52,7 @@ __all__ = [
 #: seeds of the demo: training scene, test scene, training
 DEMO_SEEDS = {"train_scene": 1, "test_scene": 2, "training": 0}
 #: training settings of the demo network
-DEMO_TRAINING = {"hidden": 3, "activation": "sigmoid", "n_samples": 40_000, "weight_decay": 2e-3}
+DEMO_TRAINING: dict[str, Any] = {"hidden": 3, "activation": "sigmoid", "n_samples": 40_000, "weight_decay": 2e-3}
 #: files written by :func:`write_demo` (and ``fxnet demo``)
 DEMO_FILES = (
     "network.json",

@@ -273,7 +273,7 @@ def load_npz(path: str | os.PathLike[str]) -> Network:
 
 def save_npz(path: str | os.PathLike[str], network: Network) -> None:
     """Write a network as an ``.npz`` of arrays that :func:`load_npz` reads (atomic)."""
-    arrays: dict[str, np.ndarray] = {
+    arrays: dict[str, Any] = {
         "input_bits": np.array(network.input_bits),
         "input_scale": np.array(network.input_scale),
         "input_names": np.array(network.input_names),

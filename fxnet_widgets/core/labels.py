@@ -378,8 +378,8 @@ def sample_pixels(
     tr_idx, va_idx = [], []
     if balance:
         per = n // len(pixels.classes)
-        for c in range(len(pixels.classes)):
-            idx = rng.permutation(np.flatnonzero(pixels.labels == c))
+        for ci in range(len(pixels.classes)):
+            idx = rng.permutation(np.flatnonzero(pixels.labels == ci))
             n_val_pool = max(1, int(round(len(idx) * validation)))
             val_pool, tr_pool = idx[:n_val_pool], idx[n_val_pool:]
             n_va = max(1, int(round(per * validation)))

@@ -239,8 +239,8 @@ def fit(
             return float(-np.mean(t * np.log(p) + (1 - t) * np.log(1 - p)))
         return float(-np.mean(np.sum(t * np.log(p), axis=1)))
 
-    m = [np.zeros_like(p) for p in params]
-    v = [np.zeros_like(p) for p in params]
+    mom = [np.zeros_like(p) for p in params]
+    vel = [np.zeros_like(p) for p in params]
     b1, b2, eps = 0.9, 0.999, 1e-8
     step = 0
     best = (np.inf, [p.copy() for p in params], 0)
@@ -265,9 +265,9 @@ def fit(
             step += 1
             c1, c2 = 1 - b1**step, 1 - b2**step
             for j, g in enumerate(grads):
-                m[j] = b1 * m[j] + (1 - b1) * g
-                v[j] = b2 * v[j] + (1 - b2) * g * g
-                params[j] = params[j] - learning_rate * (m[j] / c1) / (np.sqrt(v[j] / c2) + eps)
+                mom[j] = b1 * mom[j] + (1 - b1) * g
+                vel[j] = b2 * vel[j] + (1 - b2) * g * g
+                params[j] = params[j] - learning_rate * (mom[j] / c1) / (np.sqrt(vel[j] / c2) + eps)
         train_loss.append(loss(forward(zt, params)[-1], ttr))
         val_loss.append(loss(forward(zv, params)[-1], tva))
         if val_loss[-1] < best[0] - 1e-6:

@@ -109,7 +109,8 @@ def test_fan_in_limit():
         ("weight_frac", 41, "weight_frac must be between -40 and 40, not 41"),
         ("table_frac", -41, "table_frac must be between -40 and 40, not -41"),
         ("acc_overflow", "clamp", "acc_overflow must be one of wrap, saturate, not 'clamp'"),
-        ("index_round", "nearest", "index_round must be one of floor, trunc, half-up, half-away, half-even, not 'nearest'"),
+        ("index_round", "nearest",
+         "index_round must be one of floor, trunc, half-up, half-away, half-even, not 'nearest'"),
         ("table_sample", "centre", "table_sample must be one of edge, mid, not 'centre'"),
         ("acc_bits", 18.0, "acc_bits must be an integer, not 18.0"),
         ("acc_bits", True, "acc_bits must be an integer, not True"),
@@ -129,7 +130,8 @@ def test_plan_limits_name_the_field(tmp_path, key, value, message):
 def test_plan_layer_count_and_required_keys(tmp_path):
     net = fw.Network.from_dict(NET_DOC)
     p = write(tmp_path, "plan.json", {"layers": [PLAN_LAYER]})
-    with pytest.raises(ValueError, match=r"^.*plan\.json: layers must have 2 entries \(one per network layer\), not 1$"):
+    message = r"^.*plan\.json: layers must have 2 entries \(one per network layer\), not 1$"
+    with pytest.raises(ValueError, match=message):
         fw.Plan.load(p, net)
     missing = {k: v for k, v in PLAN_LAYER.items() if k != "table_frac"}
     p = write(tmp_path, "plan.json", {"layers": [PLAN_LAYER, missing]})

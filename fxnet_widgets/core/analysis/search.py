@@ -33,6 +33,7 @@ import itertools
 import json
 import math
 import multiprocessing
+import multiprocessing.context
 import os
 import sys
 import threading
@@ -48,6 +49,9 @@ from ..network import Network, as_codes
 from ..plan import CHOICES, INT_LIMITS, PLAN_FIELDS, LayerPlan, Plan
 from .cost import COST_KEYS, HardwareCost, hardware_cost
 from .metrics import ErrorMetrics, check_labels, error_metrics
+
+#: one plan to evaluate: (record index, its settings as (name, value) pairs, plan document, safe accumulators)
+_Item = tuple[int, tuple[tuple[str, Any], ...], dict[str, Any], bool]
 
 __all__ = [
     "SerialExecutor",
@@ -115,6 +119,7 @@ def _local_pool(workers: int) -> cf.Executor:
     methods = multiprocessing.get_all_start_methods()
     main_file = getattr(sys.modules.get("__main__"), "__file__", None)
     spec = getattr(sys.modules.get("__main__"), "__spec__", None)
+    ctx: multiprocessing.context.BaseContext
     if spec is None and main_file is not None and not os.path.isfile(main_file) and "fork" in methods:
         ctx = multiprocessing.get_context("fork")
     elif sys.platform != "win32" and "forkserver" in methods:
@@ -274,7 +279,7 @@ def _evaluate_one(
 
 def _run_chunk(
     net_doc: dict[str, Any], codes: np.ndarray, labels: np.ndarray | None,
-    items: list[tuple[int, tuple[tuple[str, Any], ...], dict[str, Any], bool]],
+    items: list[_Item],
     cost_key: str, cost_options: dict[str, Any],
 ) -> list[SweepRecord]:  # fmt: skip
     """Evaluate one chunk of plans (runs in a worker)."""
@@ -305,7 +310,7 @@ def _prepare_data(network: Network, codes: Any, labels: Any) -> tuple[np.ndarray
 
 def _evaluate(
     runner: _Runner, network: Network, codes: np.ndarray, labels: np.ndarray | None,
-    items: list[tuple[int, tuple[tuple[str, Any], ...], dict[str, Any], bool]],
+    items: list[_Item],
     cost_key: str, cost_options: dict[str, Any], progress: Progress | None, chunks_per_worker: int = 4,
 ) -> list[SweepRecord]:  # fmt: skip
     total = len(items)
@@ -371,7 +376,7 @@ def evaluate_plans(
     _check_cost_key(cost)
     opts = _cost_options(cost_options)
     flat, lab = _prepare_data(network, codes, labels)
-    items = [(i, (), p.to_dict(), False) for i, p in enumerate(plans)]
+    items: list[_Item] = [(i, (), p.to_dict(), False) for i, p in enumerate(plans)]
     runner = _Runner(executor, len(items) * flat.shape[0])
     try:
         return _evaluate(runner, network, flat, lab, items, cost, opts, progress)
@@ -826,7 +831,7 @@ def tune(
 
     def run(plans: list[Plan]) -> list[SweepRecord]:
         todo = [p for p in dict.fromkeys(plans) if p not in seen]
-        items = [(len(records) + i, (), p.to_dict(), False) for i, p in enumerate(todo)]
+        items: list[_Item] = [(len(records) + i, (), p.to_dict(), False) for i, p in enumerate(todo)]
         got = _evaluate(runner, network, flat, lab, items, cost, opts, progress, chunks_per_worker=1)
         for p, r in zip(todo, got):
             seen[p] = r

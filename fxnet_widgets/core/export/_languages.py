@@ -21,7 +21,7 @@ from ._memh import bit_patterns, hex_digits
 
 __all__ = ["scalars", "vhdl_package", "verilog_include", "c_header"]
 
-Scalar = tuple[str, object, str]  # (name, value, comment)
+Scalar = tuple[str, bool | int | str, str]  # (name, value, comment)
 
 
 def _round_name(mode: str) -> str:
@@ -79,6 +79,7 @@ def _layer_scalars(L: LayerDesign, n_vectors: int | None) -> Iterator[Scalar]:
     if L.table is not None:
         assert L.table_bits is not None and L.table_file is not None
         yield (f"{n}_TABLE_BITS", L.table_bits, "table address bits; address = index - INDEX_MIN")
+        assert L.table_frac is not None
         yield (f"{n}_TABLE_FRAC", L.table_frac, "fraction bits of the table index")
         yield (f"{n}_TABLE_FILE", L.table_file, "$readmemh image of the table")
     yield (f"{n}_OUT_BITS", L.out_bits, "output code words")

@@ -1,0 +1,32 @@
+"""The house style, enforced: ruff over the package and the tests, mypy over the core (config in pyproject.toml)."""
+
+import importlib.util
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def _tool(name: str) -> None:
+    if importlib.util.find_spec(name) is None:
+        reason = f"{name} is not installed (pip install -e '.[test]')"
+        if os.environ.get("FXNET_REQUIRE_TOOLS") == "1":
+            pytest.fail(reason, pytrace=False)
+        pytest.skip(reason)
+
+
+def test_ruff_is_clean():
+    _tool("ruff")
+    p = subprocess.run([sys.executable, "-m", "ruff", "check", "fxnet_widgets", "tests"], cwd=ROOT,
+                       capture_output=True, text=True)  # fmt: skip
+    assert p.returncode == 0, p.stdout[-4000:] + p.stderr[-2000:]
+
+
+def test_mypy_is_clean_on_the_core():
+    _tool("mypy")
+    p = subprocess.run([sys.executable, "-m", "mypy"], cwd=ROOT, capture_output=True, text=True)
+    assert p.returncode == 0, p.stdout[-4000:] + p.stderr[-2000:]
