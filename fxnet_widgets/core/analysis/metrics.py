@@ -186,6 +186,7 @@ def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
     dec = np.asarray(result.decisions).reshape(-1)
     fdec = np.asarray(result.float_decisions).reshape(-1)
     mismatch = int(np.count_nonzero(dec != fdec))
+    per_sample: np.ndarray
     if err.shape[1] == 1:
         per_sample = err.reshape(n)  # the largest of one value is the value itself
     else:
