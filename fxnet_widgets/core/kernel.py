@@ -195,6 +195,7 @@ class IntegerLayer:
             f"accumulator {q_notation(p.acc_bits, self.acc_frac)} {p.acc_overflow}, "
         )
         if self.table is not None:
+            assert p.table_bits is not None and p.table_frac is not None  # a table layer's plan has both
             index = q_notation(p.table_bits, p.table_frac)
             s += f"table {2 ** p.table_bits} x {p.out_bits} b (index {index}, shift {self.shift}), "
         else:
@@ -594,7 +595,8 @@ class _LayerOut:
             L = self.layer
             alo, ahi = signed_range(L.plan.acc_bits)
             n = self.codes.shape[1]
-            out = np.empty((L.n_out, n), dtype=_smallest_int(min(min(L.sum_min), alo), max(max(L.sum_max), ahi)))
+            dtype = _smallest_int(min(min(L.sum_min), alo), max(max(L.sum_max), ahi))
+            out: np.ndarray = np.empty((L.n_out, n), dtype=dtype)
             for j in range(L.n_out):
                 direct = self._acc_direct[j]
                 if isinstance(direct, tuple):  # (s_A over the look-up domain, indices): gathered on first use
@@ -613,7 +615,7 @@ def _run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> _LayerOut:
     code_dt = _smallest_int(layer.code_min, layer.code_max)
     if layer.code_min >= 0 and layer.code_max <= 255:
         code_dt = np.uint8
-    codes = np.empty((layer.n_out, n), dtype=code_dt)
+    codes: np.ndarray = np.empty((layer.n_out, n), dtype=code_dt)
     counts = {name: np.zeros(layer.n_out, dtype=np.int64) for name in ("acc_overflow", "table_low", "table_high")}
     acc_direct: list[Any] = []
     obs_min = np.zeros(layer.n_out, dtype=np.int64)

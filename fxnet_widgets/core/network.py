@@ -131,6 +131,100 @@ def _frozen(a: np.ndarray) -> np.ndarray:
     return a
 
 
+def _validated(doc: Any) -> dict[str, Any]:
+    """The checked fields of a network document (layers frozen), or the first problem as an error."""
+    if not isinstance(doc, dict):
+        raise TypeError(f"network must be a JSON object, not {_short(doc)}")
+    unknown = sorted(set(doc) - _NETWORK_KEYS, key=str)
+    if unknown:
+        raise ValueError(f"{key_text(unknown[0])} is not a network key (known: {', '.join(sorted(_NETWORK_KEYS))})")
+    if doc.get("kind", "fxnet.network") != "fxnet.network":
+        raise ValueError(f"kind must be 'fxnet.network', not {doc.get('kind')!r}")
+    if doc.get("version", 1) != 1 or isinstance(doc.get("version", 1), bool):
+        raise ValueError(f"version must be 1, not {doc.get('version')!r}")
+    inp = doc.get("input", {})
+    if not isinstance(inp, dict):
+        raise TypeError(f"input must be an object, not {_short(inp)}")
+    unknown = sorted(set(inp) - _INPUT_KEYS, key=str)
+    if unknown:
+        raise ValueError(f"input.{key_text(unknown[0])} is not an input key (known: bits, names, scale)")
+    bits = inp.get("bits", 8)
+    if not _is_int(bits):
+        raise TypeError(f"input.bits must be an integer, not {_short(bits)}")
+    if not 1 <= bits <= 16:
+        raise ValueError(f"input.bits must be between 1 and 16, not {bits!r}")
+    scale = inp.get("scale", "pow2")
+    if scale not in SCALES:
+        raise ValueError(f"input.scale must be one of pow2, full, not {_short(scale)}")
+    if "layers" not in doc:
+        raise ValueError("layers is missing (a list of layer objects)")
+    layers_doc = doc["layers"]
+    if not isinstance(layers_doc, (list, tuple)) or not layers_doc:
+        raise TypeError(f"layers must be a non-empty list, not {_short(layers_doc)}")
+    layers: list[Layer] = []
+    prev_out = None
+    for li, ld in enumerate(layers_doc):
+        where = f"layers[{li}]"
+        if not isinstance(ld, dict):
+            raise TypeError(f"{where} must be an object, not {_short(ld)}")
+        unknown = sorted(set(ld) - _LAYER_KEYS, key=str)
+        if unknown:
+            raise ValueError(
+                f"{where}.{key_text(unknown[0])} is not a layer key (known: activation, bias, weights)"
+            )
+        for key in ("weights", "bias", "activation"):
+            if key not in ld:
+                raise ValueError(f"{where}.{key} is missing")
+        act = ld["activation"]
+        if act not in ACTIVATIONS:
+            raise ValueError(f"{where}.activation must be one of {', '.join(ACTIVATIONS)}, not {_short(act)}")
+        w = _matrix(ld["weights"], f"{where}.weights")
+        if w.shape[1] > MAX_FAN_IN:
+            raise ValueError(f"{where}.weights fan-in must be at most {MAX_FAN_IN}, not {w.shape[1]}")
+        if prev_out is not None and w.shape[1] != prev_out:
+            raise ValueError(
+                f"{where}.weights must have {prev_out} columns (the outputs of layers[{li - 1}]), not {w.shape[1]}"
+            )
+        b = _vector(ld["bias"], f"{where}.bias", w.shape[0])
+        layers.append(Layer(_frozen(w), _frozen(b), act))
+        prev_out = w.shape[0]
+    n_in = layers[0].n_in
+    names = inp.get("names")
+    if names is None:
+        names = ["red", "green", "blue"] if n_in == 3 else [f"x{i}" for i in range(n_in)]
+    if not isinstance(names, (list, tuple)) or not all(isinstance(n, str) for n in names):
+        raise TypeError(f"input.names must be a list of strings, not {_short(names)}")
+    if len(names) != n_in:
+        raise ValueError(
+            f"input.names must have {n_in} entries (the columns of layers[0].weights), not {len(names)}"
+        )
+    out = doc.get("output", {})
+    if not isinstance(out, dict):
+        raise TypeError(f"output must be an object, not {_short(out)}")
+    unknown = sorted(set(out) - _OUTPUT_KEYS, key=str)
+    if unknown:
+        raise ValueError(f"output.{key_text(unknown[0])} is not an output key (known: classes, threshold)")
+    n_out = layers[-1].n_out
+    classes = out.get("classes")
+    if classes is None:
+        classes = ["other", "target"] if n_out == 1 else [f"class{i}" for i in range(n_out)]
+    if not isinstance(classes, (list, tuple)) or not all(isinstance(c, str) for c in classes):
+        raise TypeError(f"output.classes must be a list of strings, not {_short(classes)}")
+    want = 2 if n_out == 1 else n_out
+    if len(classes) != want:
+        raise ValueError(f"output.classes must have {want} names for {n_out} output(s), not {len(classes)}")
+    thr = out.get("threshold", 0.5)
+    if not isinstance(thr, (int, float)) or isinstance(thr, bool):
+        raise TypeError(f"output.threshold must be a number, not {_short(thr)}")
+    _check_float_range(thr, "output.threshold")
+    if not np.isfinite(thr):
+        raise ValueError(f"output.threshold must be finite, not {thr!r}")
+    return {
+        "layers": tuple(layers), "input_names": tuple(names), "input_bits": int(bits), "input_scale": scale,
+        "classes": tuple(classes), "threshold": float(thr),
+    }  # fmt: skip
+
+
 @dataclass(frozen=True, eq=False)
 class Layer:
     """One fully connected layer: ``f(W @ h + b)``."""
@@ -138,6 +232,29 @@ class Layer:
     weights: np.ndarray
     bias: np.ndarray
     activation: str
+
+    def __post_init__(self) -> None:
+        # validated and frozen however it is built (the constructor included): a layer is a value
+        if not isinstance(self.activation, str) or self.activation not in ACTIVATIONS:
+            raise ValueError(f"activation must be one of {', '.join(ACTIVATIONS)}, not {_short(self.activation)}")
+        w = _matrix(self.weights, "weights")
+        if w.shape[1] > MAX_FAN_IN:
+            raise ValueError(f"weights fan-in must be at most {MAX_FAN_IN}, not {w.shape[1]}")
+        b = _vector(self.bias, "bias", w.shape[0])
+        object.__setattr__(self, "weights", _frozen(w))
+        object.__setattr__(self, "bias", _frozen(b))
+
+    def __eq__(self, other: object) -> bool:
+        return (
+            isinstance(other, Layer)
+            and other.activation == self.activation
+            and other.weights.shape == self.weights.shape
+            and bool(np.array_equal(other.weights, self.weights))
+            and bool(np.array_equal(other.bias, self.bias))
+        )
+
+    def __hash__(self) -> int:
+        return hash((self.activation, self.weights.shape, self.weights.tobytes(), self.bias.tobytes()))
 
     @property
     def n_in(self) -> int:
@@ -152,7 +269,9 @@ class Layer:
 class Network:
     """A validated float network (immutable; equal by value).
 
-    Use :meth:`from_layers` or :meth:`load` rather than the constructor.
+    Every way of building one (the constructor, :meth:`from_layers`, :meth:`from_dict`,
+    :meth:`load`, :meth:`replace_layers`) validates it and fingerprints its whole content
+    (``digest``), which equality, hashing and every cache key use.
     """
 
     layers: tuple[Layer, ...]
@@ -161,7 +280,32 @@ class Network:
     input_scale: str = "pow2"
     classes: tuple[str, ...] = ("other", "target")
     threshold: float = 0.5
-    digest: str = field(default="", compare=False)
+    digest: str = field(default="", compare=False, init=False)
+
+    def __post_init__(self) -> None:
+        layers = self.layers
+        if isinstance(layers, (str, bytes)) or not isinstance(layers, Iterable):
+            raise TypeError(f"layers must be a non-empty sequence of layers, not {_short(layers)}")
+        raw = [
+            {"weights": L.weights, "bias": L.bias, "activation": L.activation} if isinstance(L, Layer) else L
+            for L in layers
+        ]
+        names = self.input_names
+        classes = self.classes
+        doc: dict[str, Any] = {
+            "input": {"bits": self.input_bits, "scale": self.input_scale},
+            "layers": raw,
+            "output": {"threshold": self.threshold},
+        }
+        if names is not None:
+            doc["input"]["names"] = list(names) if isinstance(names, (list, tuple)) else names
+        if classes is not None:
+            doc["output"]["classes"] = list(classes) if isinstance(classes, (list, tuple)) else classes
+        checked = _validated(doc)
+        for name, value in checked.items():
+            object.__setattr__(self, name, value)
+        digest = hashlib.blake2b(dumps_json(self.to_dict()).encode(), digest_size=16).hexdigest()
+        object.__setattr__(self, "digest", digest)
 
     # -- construction -------------------------------------------------------------
     @classmethod
@@ -206,96 +350,10 @@ class Network:
     @classmethod
     def from_dict(cls, doc: Any) -> Network:
         """Validate a network document (the parsed JSON file)."""
-        if not isinstance(doc, dict):
-            raise TypeError(f"network must be a JSON object, not {_short(doc)}")
-        unknown = sorted(set(doc) - _NETWORK_KEYS, key=str)
-        if unknown:
-            raise ValueError(f"{key_text(unknown[0])} is not a network key (known: {', '.join(sorted(_NETWORK_KEYS))})")
-        if doc.get("kind", "fxnet.network") != "fxnet.network":
-            raise ValueError(f"kind must be 'fxnet.network', not {doc.get('kind')!r}")
-        if doc.get("version", 1) != 1 or isinstance(doc.get("version", 1), bool):
-            raise ValueError(f"version must be 1, not {doc.get('version')!r}")
-        inp = doc.get("input", {})
-        if not isinstance(inp, dict):
-            raise TypeError(f"input must be an object, not {_short(inp)}")
-        unknown = sorted(set(inp) - _INPUT_KEYS, key=str)
-        if unknown:
-            raise ValueError(f"input.{key_text(unknown[0])} is not an input key (known: bits, names, scale)")
-        bits = inp.get("bits", 8)
-        if not _is_int(bits):
-            raise TypeError(f"input.bits must be an integer, not {_short(bits)}")
-        if not 1 <= bits <= 16:
-            raise ValueError(f"input.bits must be between 1 and 16, not {bits!r}")
-        scale = inp.get("scale", "pow2")
-        if scale not in SCALES:
-            raise ValueError(f"input.scale must be one of pow2, full, not {_short(scale)}")
-        if "layers" not in doc:
-            raise ValueError("layers is missing (a list of layer objects)")
-        layers_doc = doc["layers"]
-        if not isinstance(layers_doc, (list, tuple)) or not layers_doc:
-            raise TypeError(f"layers must be a non-empty list, not {_short(layers_doc)}")
-        layers: list[Layer] = []
-        prev_out = None
-        for li, ld in enumerate(layers_doc):
-            where = f"layers[{li}]"
-            if not isinstance(ld, dict):
-                raise TypeError(f"{where} must be an object, not {_short(ld)}")
-            unknown = sorted(set(ld) - _LAYER_KEYS, key=str)
-            if unknown:
-                raise ValueError(
-                    f"{where}.{key_text(unknown[0])} is not a layer key (known: activation, bias, weights)"
-                )
-            for key in ("weights", "bias", "activation"):
-                if key not in ld:
-                    raise ValueError(f"{where}.{key} is missing")
-            act = ld["activation"]
-            if act not in ACTIVATIONS:
-                raise ValueError(f"{where}.activation must be one of {', '.join(ACTIVATIONS)}, not {_short(act)}")
-            w = _matrix(ld["weights"], f"{where}.weights")
-            if w.shape[1] > MAX_FAN_IN:
-                raise ValueError(f"{where}.weights fan-in must be at most {MAX_FAN_IN}, not {w.shape[1]}")
-            if prev_out is not None and w.shape[1] != prev_out:
-                raise ValueError(
-                    f"{where}.weights must have {prev_out} columns (the outputs of layers[{li - 1}]), not {w.shape[1]}"
-                )
-            b = _vector(ld["bias"], f"{where}.bias", w.shape[0])
-            layers.append(Layer(_frozen(w), _frozen(b), act))
-            prev_out = w.shape[0]
-        n_in = layers[0].n_in
-        names = inp.get("names")
-        if names is None:
-            names = ["red", "green", "blue"] if n_in == 3 else [f"x{i}" for i in range(n_in)]
-        if not isinstance(names, (list, tuple)) or not all(isinstance(n, str) for n in names):
-            raise TypeError(f"input.names must be a list of strings, not {_short(names)}")
-        if len(names) != n_in:
-            raise ValueError(
-                f"input.names must have {n_in} entries (the columns of layers[0].weights), not {len(names)}"
-            )
-        out = doc.get("output", {})
-        if not isinstance(out, dict):
-            raise TypeError(f"output must be an object, not {_short(out)}")
-        unknown = sorted(set(out) - _OUTPUT_KEYS, key=str)
-        if unknown:
-            raise ValueError(f"output.{key_text(unknown[0])} is not an output key (known: classes, threshold)")
-        n_out = layers[-1].n_out
-        classes = out.get("classes")
-        if classes is None:
-            classes = ["other", "target"] if n_out == 1 else [f"class{i}" for i in range(n_out)]
-        if not isinstance(classes, (list, tuple)) or not all(isinstance(c, str) for c in classes):
-            raise TypeError(f"output.classes must be a list of strings, not {_short(classes)}")
-        want = 2 if n_out == 1 else n_out
-        if len(classes) != want:
-            raise ValueError(f"output.classes must have {want} names for {n_out} output(s), not {len(classes)}")
-        thr = out.get("threshold", 0.5)
-        if not isinstance(thr, (int, float)) or isinstance(thr, bool):
-            raise TypeError(f"output.threshold must be a number, not {_short(thr)}")
-        _check_float_range(thr, "output.threshold")
-        if not np.isfinite(thr):
-            raise ValueError(f"output.threshold must be finite, not {thr!r}")
-        net = cls(tuple(layers), tuple(names), int(bits), scale, tuple(classes), float(thr))
-        digest = hashlib.blake2b(dumps_json(net.to_dict()).encode(), digest_size=16).hexdigest()
-        object.__setattr__(net, "digest", digest)
-        return net
+        checked = _validated(doc)
+        return cls(checked["layers"], checked["input_names"], checked["input_bits"], checked["input_scale"],
+                   checked["classes"], checked["threshold"])  # fmt: skip
+
 
     @classmethod
     def load(cls, path: str | os.PathLike[str]) -> Network:

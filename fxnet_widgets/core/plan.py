@@ -167,7 +167,7 @@ class Plan:
         ...              table_bits=10, table_frac=6).layers[0].table_bits
         10
         """
-        layers = []
+        layers: list[LayerPlan] = []
         for L in network.layers:
             doc = dict(values)
             if L.activation in ("relu", "identity"):
