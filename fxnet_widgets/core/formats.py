@@ -158,9 +158,11 @@ def bits_for_range(lo: int, hi: int) -> int:
 
     >>> bits_for_range(-97920, 97155)
     18
+    >>> bits_for_range(-2, -2)  # two's complement: 2 bits hold -2..1
+    2
     """
     lo, hi = int(lo), int(hi)
-    need = max(hi.bit_length(), (-lo - 1).bit_length() if lo < 0 else 0)
+    need = max(hi.bit_length() if hi > 0 else 0, (-lo - 1).bit_length() if lo < 0 else 0)
     return need + 1
 
 

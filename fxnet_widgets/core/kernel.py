@@ -331,7 +331,11 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
                 f"{where}: the exact sum can reach {worst}, which does not fit in int64; "
                 "use fewer weight bits or a smaller input range"
             )
-        safe_min, safe_max = _interval(q_w, u_min, u_max, q_b_raw)
+        # the safe width holds the sum interval and the raw bias itself (semantics.md, "Guaranteed-safe
+        # accumulator width"), so at that width neither an overflow nor a bias clamp can happen
+        s_lo, s_hi = _interval(q_w, u_min, u_max, q_b_raw)
+        safe_min = [min(a, b) for a, b in zip(s_lo, q_b_raw)]
+        safe_max = [max(a, b) for a, b in zip(s_hi, q_b_raw)]
         safe_bits = np.array([bits_for_range(a, b) for a, b in zip(safe_min, safe_max)], dtype=np.int64)
         # 5.-7. index, table, output
         out_lo, out_hi, out_signed = _code_range(L.activation, lp.out_bits)

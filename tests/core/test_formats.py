@@ -141,3 +141,14 @@ def test_against_apytypes(mode, overflow):
     ref = np.rint(np.asarray(final.to_numpy()) * 32).astype(np.int64)
     ours = quantise(VALUES, 10, 5, rounding=mode, overflow=overflow)
     np.testing.assert_array_equal(ours, ref)
+
+
+def test_bits_for_range_is_the_smallest_twos_complement_width():
+    # definition of a w-bit two's-complement range, [-2^(w-1), 2^(w-1) - 1] (common practice); every
+    # interval inside [-70, 70], all-negative and all-positive ones included
+    from fxnet_widgets.core.formats import bits_for_range
+
+    for lo in range(-70, 71):
+        for hi in range(lo, 71):
+            w = next(w for w in range(1, 10) if -(2 ** (w - 1)) <= lo and hi <= 2 ** (w - 1) - 1)
+            assert bits_for_range(lo, hi) == w, (lo, hi)
