@@ -22,8 +22,6 @@ from .core import (
     q_notation,
     quantise,
 )
-from .core.demo import build_demo, suggest_plan, write_demo
-from .core.images import RGBImage, read_image
 from .core.analysis import (
     VIDEO_FORMATS,
     Attribution,
@@ -43,6 +41,9 @@ from .core.analysis import (
     throughput,
     tune,
 )
+from .core.demo import build_demo, suggest_plan, write_demo
+from .core.export import export
+from .core.images import RGBImage, read_image
 from .core.imports import from_arrays, from_sklearn, load_npz, save_npz
 from .core.labels import (
     LabelledPixels,
@@ -53,8 +54,8 @@ from .core.labels import (
     load_labels,
     sample_pixels,
 )
+from .core.onnx_io import load_onnx, save_onnx
 from .core.scenes import Scene, make_scene
-from .core.export import export
 from .core.training import Training, TrainingReport, fit, train
 
 __version__ = "0.1.0"
@@ -128,6 +129,8 @@ __all__ = [
     "read_image",
     "sample_pixels",
     "save_npz",
+    "load_onnx",
+    "save_onnx",
     "suggest_plan",
     "train",
     "write_demo",
