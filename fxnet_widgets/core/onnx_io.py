@@ -3,10 +3,11 @@
 The ``onnx`` package is imported inside the functions, so the core does not need
 it until a model is read or written.
 
-Supported graphs (one input, one output, a chain of nodes, opsets 9 to the current one)
+Supported graphs (one input, a chain of nodes to one output, opsets 9 to the current one)
     ``Gemm`` (``transA``, ``transB``, ``alpha``, ``beta``), ``MatMul`` followed by an
     optional ``Add`` of a constant bias, ``Sigmoid``, ``Relu``, ``Tanh``,
     ``Identity``, ``Flatten`` / ``Reshape`` that keep an N x n input as it is,
+    ``Cast`` to float or double (values are read in float64),
     ``BatchNormalization`` (inference mode) directly after a ``Gemm`` or ``MatMul``
     (folded exactly into that layer: ``s = scale / sqrt(var + eps)``,
     ``W' = s * W``, ``b' = s * (b - mean) + B``), ``Constant`` nodes and a final
@@ -56,7 +57,7 @@ __all__ = ["load_onnx", "save_onnx", "ONNX_OPS"]
 #: op types :func:`load_onnx` reads
 ONNX_OPS = (
     "Gemm", "MatMul", "Add", "Sub", "Mul", "Div", "Sigmoid", "Relu", "Tanh", "Identity",
-    "Flatten", "Reshape", "BatchNormalization", "Softmax", "Constant",
+    "Flatten", "Reshape", "Cast", "BatchNormalization", "Softmax", "Constant",
 )
 _ACT = {"Sigmoid": "sigmoid", "Relu": "relu", "Tanh": "tanh"}
 _OP_ACT = {"sigmoid": "Sigmoid", "relu": "Relu", "tanh": "Tanh", "identity": "Identity"}
@@ -133,7 +134,7 @@ def _step(ch: _Chain, node: Any, index: int, consts: dict[str, np.ndarray], cur:
     data = [i for i in ins if i not in consts]
     if data != [cur]:
         raise ch.refuse(node, index, f"it must take the chain's tensor {cur!r} and constants, not inputs {ins}")
-    if ch.softmax:
+    if ch.softmax and op not in ("Identity", "Cast"):
         raise ch.refuse(node, index, "nothing may follow the final Softmax")
     if ch.transposed and op not in ("Gemm", "Mul", "Div", "Identity") and not (op in ("Add", "Sub") and not ch.layers):
         raise ch.refuse(node, index, "an n_in x N input must go straight into Gemm with transA=1")
@@ -201,6 +202,9 @@ def _step(ch: _Chain, node: Any, index: int, consts: dict[str, np.ndarray], cur:
         elif not ch.layers:
             raise ch.refuse(node, index, "a softmax must follow a layer")
         ch.softmax = True
+    elif op == "Cast":
+        if at.get("to") not in _FLOAT_TYPES:
+            raise ch.refuse(node, index, f"a cast to ONNX type {at.get('to')} (only float and double keep the values)")
     elif op == "Flatten":
         if at.get("axis", 1) not in (1, -1):
             raise ch.refuse(node, index, f"flatten at axis {at['axis']} changes the N x n tensor")
@@ -230,7 +234,22 @@ def _meta(meta: dict[str, str], opts: dict[str, Any]) -> None:
         opts["threshold"] = float(meta["fxnet.threshold"])
 
 
-def load_onnx(path_or_model: Any, *, input_bits: int = 8, input_scale: str = "pow2") -> Network:
+def _pick_output(name: str, g: Any, output: str | None) -> str:
+    names = [o.name for o in g.output]
+    if output is not None:
+        if output not in names:
+            known = ", ".join(names)
+            raise FileFormatError(f"{name}: output must be one of the graph's outputs ({known}), not {output!r}")
+        return output
+    floats = [o.name for o in g.output if o.type.tensor_type.elem_type in _FLOAT_TYPES]
+    if len(names) == 1 or len(floats) == 1:
+        return names[0] if len(names) == 1 else floats[0]
+    raise FileFormatError(f"{name}: the graph has {len(names)} outputs ({', '.join(names)}); say which with output=")
+
+
+def load_onnx(
+    path_or_model: Any, *, input_bits: int = 8, input_scale: str = "pow2", output: str | None = None
+) -> Network:
     """A network equal to a fully connected ONNX model (see the module text for what is read).
 
     Parameters
@@ -242,6 +261,10 @@ def load_onnx(path_or_model: Any, *, input_bits: int = 8, input_scale: str = "po
     input_scale : str
         What the model's input is: ``"pow2"`` (code / 2**bits), ``"full"``
         (code / (2**bits - 1)) or ``"codes"``.
+    output : str, optional
+        Graph output to read when there are several (default: the only one, or the
+        only float one, e.g. the probabilities beside a label); only the nodes it
+        depends on are read.
 
     Returns
     -------
@@ -269,10 +292,15 @@ def load_onnx(path_or_model: Any, *, input_bits: int = 8, input_scale: str = "po
     if len(inputs) != 1:
         names = ", ".join(i.name for i in inputs)
         raise FileFormatError(f"{name}: the graph must have one input, not {len(inputs)} ({names})")
-    if len(g.output) != 1:
-        raise FileFormatError(f"{name}: the graph must have one output, not {len(g.output)}")
+    out_name = _pick_output(name, g, output)
+    needed, wanted = [], {out_name}
+    for node in reversed(g.node):  # the nodes the chosen output depends on (others, e.g. a label, are left out)
+        if wanted.intersection(node.output):
+            needed.append(node)
+            wanted.update(i for i in node.input if i)
+    needed.reverse()
     shape = _input_shape(name, inputs[0])
-    first = next((n for n in g.node if n.op_type != "Constant"), None)
+    first = next((n for n in needed if n.op_type != "Constant"), None)
     transposed = first is not None and first.op_type == "Gemm" and bool(_attrs(first).get("transA", 0))
     feat = 0 if transposed else 1
     if len(shape) != 2 or shape[feat] is None or not 1 <= (shape[feat] or 0) <= 4096:
@@ -281,7 +309,7 @@ def load_onnx(path_or_model: Any, *, input_bits: int = 8, input_scale: str = "po
         )
     ch = _Chain(name, int(shape[feat] or 0), transposed)
     cur = inputs[0].name
-    for index, node in enumerate(g.node):
+    for index, node in enumerate(needed):
         if node.domain not in ("", "ai.onnx"):
             raise ch.refuse(node, index, f"op domain {node.domain!r} is not the standard one")
         if node.op_type == "Constant":
@@ -299,8 +327,8 @@ def load_onnx(path_or_model: Any, *, input_bits: int = 8, input_scale: str = "po
         cur = node.output[0]
     if ch.lin is not None:
         ch.finish("identity")
-    if cur != g.output[0].name or not ch.layers:
-        raise FileFormatError(f"{name}: the graph output {g.output[0].name!r} is not the end of a chain of layers")
+    if cur != out_name or not ch.layers:
+        raise FileFormatError(f"{name}: the graph output {out_name!r} is not the end of a chain of layers")
     meta = {p.key: p.value for p in model.metadata_props}
     opts: dict[str, Any] = {}
     try:
