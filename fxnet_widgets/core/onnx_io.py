@@ -163,8 +163,10 @@ def _step(ch: _Chain, node: Any, index: int, consts: dict[str, np.ndarray], cur:
         ch.start_layer(bm.T.copy(), np.zeros(bm.shape[1]), node, index)
     elif op in ("Add", "Sub", "Mul", "Div"):
         other = consts[ins[1] if ins[0] == cur else ins[0]]
+        if ch.transposed and np.asarray(other).size != 1:
+            raise ch.refuse(node, index, "an n_in x N input can be scaled by scalars only")
         v = ch.vector(other, ch.width, node, index, "the constant")
-        if ch.lin is not None and op in ("Add", "Sub") and ins[0] == cur:
+        if ch.lin is not None and (op == "Add" or op == "Sub" and ins[0] == cur):
             w, b = ch.lin
             ch.lin = (w, b + (v if op == "Add" else -v))
         elif ch.layers or ch.lin is not None:

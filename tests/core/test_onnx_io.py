@@ -229,6 +229,24 @@ def test_refusals_name_the_node_its_op_and_why(tmp_path):
         fw.load_onnx(_mlp(), input_scale="raw")
 
 
+def test_wrong_types_and_shapes_are_one_line(tmp_path):
+    ints = [helper.make_tensor_value_info("x", TensorProto.INT64, ["N", 3])]
+    m = _model([helper.make_node("Relu", ["x"], ["y"])], {}, 3, 3, inputs=ints, check=False)
+    assert _refusal(m) == "model: input 'x' must be a float or double tensor"
+    w = _model([helper.make_node("Gemm", ["x", "W"], ["y"], name="g")], {"W": np.ones((4, 2))}, 3, 2, check=False)
+    assert _refusal(w) == "model: node 'g' (Gemm) is not supported: the weights take 4 inputs, but the tensor has 3"
+    big = _model([helper.make_node("Relu", ["x"], ["y"])], {}, 10**7, 3, check=False)
+    assert _refusal(big) == "model: input 'x' must be N x n_in (a fixed n_in of 1 to 4096), not [None, 10000000]"
+    old = _mlp()
+    old.opset_import[0].version = 7
+    assert _refusal(old) == f"model: the ONNX opset must be 9 to {NEWEST}, not 7"
+    junk = tmp_path / "junk.onnx"
+    junk.write_bytes(bytes(np.random.default_rng(1).integers(0, 256, 300, dtype=np.uint8)))
+    with pytest.raises(FileFormatError, match=r"^.*junk\.onnx: ") as info:
+        fw.load_onnx(junk)
+    assert "\n" not in str(info.value)
+
+
 def test_core_import_does_not_load_onnx():
     import subprocess
     import sys
