@@ -54,6 +54,7 @@ from .core.labels import (
     load_labels,
     sample_pixels,
 )
+from .core.onnx_io import load_onnx, save_onnx
 from .core.scenes import Scene, make_scene
 from .core.training import Training, TrainingReport, fit, train
 
@@ -128,6 +129,8 @@ __all__ = [
     "read_image",
     "sample_pixels",
     "save_npz",
+    "load_onnx",
+    "save_onnx",
     "suggest_plan",
     "train",
     "write_demo",

@@ -21,6 +21,8 @@ __all__ = ["main", "SUBCOMMANDS"]
 SUBCOMMANDS = [
     "emulate",
     "export",
+    "import_onnx",
+    "export_onnx",
     "cost",
     "sweep",
     "tune",
