@@ -28,6 +28,7 @@ SUBCOMMANDS = [
     "demo",
     "report",
     "lab",
+    "publish",
 ]
 
 
