@@ -30,6 +30,7 @@ SUBCOMMANDS = [
     "demo",
     "report",
     "lab",
+    "publish",
 ]
 
 
