@@ -224,28 +224,7 @@ def load_json(path: str | os.PathLike[str], *, max_bytes: int = MAX_JSON_BYTES) 
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
         raise FileFormatError(f"{name}: not UTF-8 text (byte {exc.start})") from None
-    if text.startswith("\ufeff"):
-        text = text[1:]
-    if _depth(text) > MAX_JSON_DEPTH:
-        raise FileFormatError(f"{name}: JSON nesting deeper than {MAX_JSON_DEPTH} levels")
-    try:
-        obj = json.loads(
-            text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant, parse_float=_finite_float
-        )
-    except json.JSONDecodeError as exc:
-        raise FileFormatError(f"{name}: invalid JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
-    except ValueError as exc:
-        raise FileFormatError(f"{name}: {exc}") from None
-    except RecursionError:
-        raise FileFormatError(f"{name}: JSON nesting too deep") from None
-    if _SURROGATE_ESCAPE.search(text):  # rare: only then pay for the check
-        try:
-            json.dumps(obj, ensure_ascii=False).encode("utf-8")
-        except UnicodeEncodeError as exc:
-            raise FileFormatError(
-                f"{name}: a string holds the lone surrogate {exc.object[exc.start]!r}, which is not Unicode text"
-            ) from None
-    return obj
+    return loads_json(text, name)
 
 
 def read_npy_header(fh: Any) -> tuple[tuple[int, ...], np.dtype] | None:
@@ -355,3 +334,29 @@ def load_npz_arrays(path: str | os.PathLike[str]) -> dict[str, np.ndarray]:
     except (*_NP_LOAD_ERRORS, MemoryError) as exc:
         msg = first_line(exc)
         raise FileFormatError(f"{name}: broken .npz archive ({msg})") from None
+
+
+def loads_json(text: str, name: str) -> Any:
+    """Parse strict JSON text (no NaN/Infinity, no duplicate keys, bounded nesting); errors start with ``name``."""
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    if _depth(text) > MAX_JSON_DEPTH:
+        raise FileFormatError(f"{name}: JSON nesting deeper than {MAX_JSON_DEPTH} levels")
+    try:
+        obj = json.loads(
+            text, object_pairs_hook=_no_duplicates, parse_constant=_reject_constant, parse_float=_finite_float
+        )
+    except json.JSONDecodeError as exc:
+        raise FileFormatError(f"{name}: invalid JSON at line {exc.lineno} column {exc.colno}: {exc.msg}") from None
+    except ValueError as exc:
+        raise FileFormatError(f"{name}: {exc}") from None
+    except RecursionError:
+        raise FileFormatError(f"{name}: JSON nesting too deep") from None
+    if _SURROGATE_ESCAPE.search(text):  # rare: only then pay for the check
+        try:
+            json.dumps(obj, ensure_ascii=False).encode("utf-8")
+        except UnicodeEncodeError as exc:
+            raise FileFormatError(
+                f"{name}: a string holds the lone surrogate {exc.object[exc.start]!r}, which is not Unicode text"
+            ) from None
+    return obj

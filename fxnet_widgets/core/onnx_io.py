@@ -42,13 +42,12 @@ back by :func:`load_onnx`.
 
 from __future__ import annotations
 
-import json
 import os
 from typing import Any
 
 import numpy as np
 
-from .fileio import FileFormatError, atomic_write_bytes, first_line
+from .fileio import FileFormatError, atomic_write_bytes, dumps_json, first_line, loads_json
 from .imports import TRAINED_ON, from_arrays
 from .network import Network
 
@@ -229,9 +228,9 @@ def _input_shape(name: str, vi: Any) -> list[int | None]:
 
 def _meta(meta: dict[str, str], opts: dict[str, Any]) -> None:
     if "fxnet.input_names" in meta:
-        opts["input_names"] = json.loads(meta["fxnet.input_names"])
+        opts["input_names"] = loads_json(meta["fxnet.input_names"], "metadata fxnet.input_names")
     if "fxnet.classes" in meta:
-        opts["classes"] = json.loads(meta["fxnet.classes"])
+        opts["classes"] = loads_json(meta["fxnet.classes"], "metadata fxnet.classes")
     if "fxnet.threshold" in meta:
         opts["threshold"] = float(meta["fxnet.threshold"])
 
@@ -377,8 +376,8 @@ def to_onnx(network: Network, *, dtype: str = "float32") -> Any:
     model = helper.make_model(graph, opset_imports=[helper.make_opsetid("", 13)], producer_name="fxnet-widgets")
     model.ir_version = 7
     for key, value in (
-        ("fxnet.input_names", json.dumps(list(network.input_names))),
-        ("fxnet.classes", json.dumps(list(network.classes))),
+        ("fxnet.input_names", dumps_json(list(network.input_names))),
+        ("fxnet.classes", dumps_json(list(network.classes))),
         ("fxnet.threshold", repr(float(network.threshold))),
         ("fxnet.input_bits", str(network.input_bits)),
         ("fxnet.input_scale", network.input_scale),
