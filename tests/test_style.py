@@ -1,22 +1,18 @@
 """The house style, enforced: ruff over the package and the tests, mypy over the core (config in pyproject.toml)."""
 
 import importlib.util
-import os
 import subprocess
 import sys
 from pathlib import Path
 
-import pytest
+from fxtools import missing
 
 ROOT = Path(__file__).resolve().parents[1]
 
 
 def _tool(name: str) -> None:
     if importlib.util.find_spec(name) is None:
-        reason = f"{name} is not installed (pip install -e '.[test]')"
-        if os.environ.get("FXNET_REQUIRE_TOOLS") == "1":
-            pytest.fail(reason, pytrace=False)
-        pytest.skip(reason)
+        missing(f"{name} is not installed (pip install -e '.[test]')")
 
 
 def test_ruff_is_clean():

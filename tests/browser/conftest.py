@@ -30,6 +30,7 @@ from typing import Any
 from urllib.parse import urlsplit
 
 import pytest
+from fxtools import missing
 
 CHROMIUM = Path(os.environ.get("FXNET_CHROMIUM", "/usr/bin/chromium"))
 CHROMIUM_ARGS = [
@@ -48,18 +49,6 @@ BUNDLE_CACHE = Path(os.environ.get("FXNET_BUNDLE_CACHE", Path.home() / ".cache" 
 LOOPBACK = {"127.0.0.1", "localhost", "::1", "[::1]"}
 #: schemes that never leave the machine
 LOCAL_SCHEMES = {"file", "data", "blob", "about", "chrome-error"}
-
-
-def require_tools() -> bool:
-    """True when a missing tool must fail the test (CI sets ``FXNET_REQUIRE_TOOLS=1``)."""
-    return os.environ.get("FXNET_REQUIRE_TOOLS", "") not in ("", "0")
-
-
-def missing(reason: str) -> None:
-    """Skip with ``reason`` on a developer machine; fail in CI."""
-    if require_tools():
-        pytest.fail(f"{reason} (FXNET_REQUIRE_TOOLS=1: a missing tool is a failure)", pytrace=False)
-    pytest.skip(reason)
 
 
 def free_port() -> int:

@@ -26,13 +26,12 @@ Pitfalls handled (and each tested on purpose in ``test_hdl_pitfalls.py``):
 from __future__ import annotations
 
 import json
-import os
 import re
 import shutil
 import subprocess
 from pathlib import Path
 
-import pytest
+from fxtools import missing
 
 RESULT = re.compile(
     r"fxnet (verilog|vhdl) bench: (PASS|FAIL) (\d+) vectors, (\d+) accumulators, (\d+) codes, "
@@ -44,10 +43,7 @@ def need_tool(name: str) -> str:
     """Path of ``name``; skip (or fail with ``FXNET_REQUIRE_TOOLS=1``) when missing."""
     path = shutil.which(name)
     if path is None:
-        msg = f"{name} is not installed (Debian package {'iverilog' if name in ('iverilog', 'vvp') else 'ghdl'})"
-        if os.environ.get("FXNET_REQUIRE_TOOLS") == "1":
-            pytest.fail(f"{msg}, and FXNET_REQUIRE_TOOLS=1 requires it")
-        pytest.skip(msg)
+        missing(f"{name} is not installed (Debian package {'iverilog' if name in ('iverilog', 'vvp') else 'ghdl'})")
     return path
 
 
