@@ -8,8 +8,9 @@ script inlined from a bundle directory (``offline_bundles``, the layout
 ``file://`` with no network. bqplot's JavaScript is always inlined from the
 installed wheel. The page records the package versions, the kernel, and the
 execution time (from the cells' timing metadata); a notebook saved without
-widget state says so. Each widget output also carries its plain-text or PNG
-representation inside ``<noscript>``.
+widget state says so. Each widget output also carries a static form inside
+``<noscript>`` (its plain text or PNG, and the saved pictures, controls and bqplot figures
+drawn as SVG from the saved state, :mod:`fxnet_widgets.report._fallback`).
 
 ``jupyter nbconvert --to fxnet-page NB.ipynb`` uses :class:`PageExporter`
 (registered under the ``nbconvert.exporters`` entry point).
@@ -31,11 +32,13 @@ from traitlets import Unicode
 from ..core.fileio import atomic_write_text, first_line
 from ._bundles import Bundles, cdn_bundles
 from ._bundles import offline_bundles as _offline_bundles
+from ._fallback import static_forms
 from ._static import esc
 
 __all__ = ["PageExporter", "publish_notebook", "read_notebook", "page_facts", "PACKAGES"]
 
 WIDGET_STATE_MIME = "application/vnd.jupyter.widget-state+json"
+VIEW_MIME = "application/vnd.jupyter.widget-view+json"
 #: the packages whose versions the page records
 PACKAGES = ("fxnet-widgets", "ipywidgets", "bqplot", "nbconvert", "nbclient", "nbformat", "ipykernel")
 
@@ -58,13 +61,16 @@ _TEMPLATE = r"""{%- extends 'lab/index.html.j2' -%}
 {%- endblock body_header -%}
 {%- block data_widget_view scoped %}
 {{ super() }}
-{%- if 'text/plain' in output.data or 'image/png' in output.data %}
+{%- set view = output.data['application/vnd.jupyter.widget-view+json'] %}
+{%- set form = resources.fxnet_page.forms.get(view['model_id'], '') %}
+{%- if form or 'text/plain' in output.data or 'image/png' in output.data %}
 <noscript><div class="fxnet-fallback">
 {%- if 'image/png' in output.data -%}
 <img alt="static picture of the widget" src="data:image/png;base64,{{ output.data['image/png'] }}">
-{%- else -%}
+{%- elif 'text/plain' in output.data -%}
 <pre>{{ output.data['text/plain'] | escape }}</pre>
 {%- endif -%}
+{{ form }}
 </div></noscript>
 {%- endif %}
 {%- endblock data_widget_view -%}
@@ -72,7 +78,11 @@ _TEMPLATE = r"""{%- extends 'lab/index.html.j2' -%}
 
 _STYLE = (
     "<style>.fxnet-page-facts{font:13px/1.4 sans-serif;margin:8px 16px;padding:6px 10px;"
-    "border:1px solid #ccc;background:#f7f7f7}.fxnet-page-facts code{font-size:12px}</style>"
+    "border:1px solid #ccc;background:#f7f7f7}.fxnet-page-facts code{font-size:12px}"
+    # with JavaScript off the static form goes on its own line under the (empty) widget output
+    # (the lab template lays an output out as a table: a caption at the bottom spans it)
+    ".jp-OutputArea-child > noscript{display:table-caption;caption-side:bottom;text-align:left}"
+    ".fxnet-fallback pre{white-space:pre-wrap}</style>"
 )
 
 
@@ -155,7 +165,8 @@ def page_facts(nb: Any, bundles: Bundles | None, seconds: float | None = None) -
     return (
         f'{_STYLE}<section class="fxnet-page-facts"><p>Kernel: <code>{esc(kernel)}</code>; execution time: '
         f"{esc(ran)}.</p><p>Versions: {versions}.</p>{state}"
-        "<noscript><p>JavaScript is off: each widget shows its plain-text form instead.</p></noscript></section>"
+        "<noscript><p>JavaScript is off: each widget shows a static form of its saved state instead "
+        "(text, pictures, figures drawn from the saved values).</p></noscript></section>"
     )
 
 
@@ -188,6 +199,7 @@ class PageExporter(HTMLExporter):
             "offline": bool(self.offline_bundles),
             "scripts": bundles.html() if bundles else "",
             "facts": page_facts(nb, bundles, self.execution_seconds),
+            "forms": static_forms(nb, VIEW_MIME, WIDGET_STATE_MIME),
         }
         return super().from_notebook_node(nb, resources, **kw)
 

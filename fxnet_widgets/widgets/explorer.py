@@ -160,6 +160,14 @@ class Explorer(w.VBox):
         shape = "-".join(map(str, self.session.network.shape))
         return f"<Explorer {shape}: {self.plan!r}>"
 
+    def _repr_mimebundle_(self, **kwargs: Any) -> dict[str, Any] | None:
+        """The widget view, with the full summary as its plain text (what a page without JavaScript shows)."""
+        data = super()._repr_mimebundle_(**kwargs)
+        if data:
+            shape = "-".join(map(str, self.session.network.shape))
+            data["text/plain"] = f"<Explorer {shape}>\n{self.summary()}"
+        return data
+
 
 def demo_explorer(assets: str | Path | None = None) -> Explorer:
     """:meth:`Explorer.demo` as a function (the quick-start notebook calls it)."""

@@ -86,6 +86,25 @@ def test_page_holds_state_bundle_text_versions(published: tuple[Path, str]) -> N
     assert len(re.findall(r'<noscript><div class="fxnet-fallback">\s*<pre>IntSlider\(', html)) == 1
 
 
+def test_static_forms_show_saved_values(published: tuple[Path, str]) -> None:
+    """With JavaScript off: the slider's saved value and the figure drawn as SVG from its saved arrays."""
+    _, html = published
+    fallbacks = re.findall(r'<noscript><div class="fxnet-fallback">(.*?)</div></noscript>', html, re.S)
+    assert len(fallbacks) == 2
+    assert "<p>ripeness: 7</p>" in fallbacks[0]
+    svg = re.search(r'<svg[^>]*class="fxnet-static-figure".*?</svg>', fallbacks[1], re.S)
+    assert svg and "red share" in svg.group(0)
+    # the saved line y = [0.1, 0.4, 0.8] over x = [0, 1, 2]: three points, first at the plot's left
+    # edge and bottom (lowest y), last at the right edge and top (the SVG's y axis points down)
+    points = re.search(r'<polyline[^>]*points="([^"]+)"', svg.group(0))
+    assert points
+    xy = [tuple(map(float, p.split(","))) for p in points.group(1).split()]
+    assert len(xy) == 3 and xy[0][0] < xy[1][0] < xy[2][0] and xy[0][1] > xy[1][1] > xy[2][1]
+    assert xy[1][0] - xy[0][0] == pytest.approx(xy[2][0] - xy[1][0])  # x evenly spaced, as saved
+    # the middle y (0.4) lies 3/7 of the way up from 0.1 to 0.8
+    assert (xy[0][1] - xy[1][1]) / (xy[0][1] - xy[2][1]) == pytest.approx(3 / 7, abs=0.01)
+
+
 def test_notebook_without_state_says_so(tmp_path: Path) -> None:
     src = _notebook(tmp_path / "plain.ipynb")  # never executed: no widget state
     html = publish_notebook(src, tmp_path / "plain.html").read_text(encoding="utf-8")
@@ -119,13 +138,13 @@ def test_cli_errors_one_line(tmp_path: Path, capsys: pytest.CaptureFixture[str])
 
 
 def test_nbconvert_uses_the_exporter(tmp_path: Path) -> None:
-    """``jupyter nbconvert --to <class path>`` gives the same page (the entry point names this class)."""
+    """``jupyter nbconvert --to fxnet-page`` (the entry point pyproject.toml registers) gives the page."""
     eps = [ep.value for ep in metadata.entry_points(group="nbconvert.exporters") if ep.name == "fxnet-page"]
-    if eps:  # registered once the package is reinstalled from this tree
-        assert eps == ["fxnet_widgets.report.publish:PageExporter"]
+    # the README's install (pip install -e .) registers the entry point (nbconvert's exporter lookup, from memory)
+    assert eps == ["fxnet_widgets.report.publish:PageExporter"]
     src = _notebook(tmp_path / "nb.ipynb")
     done = subprocess.run(
-        [sys.executable, "-m", "jupyter", "nbconvert", "--to", "fxnet_widgets.report.publish.PageExporter",
+        [sys.executable, "-m", "jupyter", "nbconvert", "--to", "fxnet-page",
          str(src), "--output", "page", "--output-dir", str(tmp_path)],
         capture_output=True, text=True, timeout=120,
     )  # fmt: skip
