@@ -254,5 +254,6 @@ def publish_notebook(
         t0 = time.perf_counter()
         ep.preprocess(nb, {"metadata": {"path": str(Path(os.path.abspath(path)).parent)}})
         exporter.execution_seconds = time.perf_counter() - t0
-    html, _ = exporter.from_notebook_node(nb)
+    # the same resources nbconvert gives a file (the title is the notebook's name), so both routes agree
+    html, _ = exporter.from_notebook_node(nb, {"metadata": {"name": Path(path).stem}})
     return atomic_write_text(out, html)

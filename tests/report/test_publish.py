@@ -150,5 +150,7 @@ def test_nbconvert_uses_the_exporter(tmp_path: Path) -> None:
     )  # fmt: skip
     assert done.returncode == 0, done.stderr[-2000:]
     html = (tmp_path / "page.html").read_text(encoding="utf-8")
+    # the same page as publish_notebook gives (the notebook is not executed, so nothing differs)
+    assert publish_notebook(src, tmp_path / "same.html").read_text(encoding="utf-8") == html
     assert "fxnet-page-facts" in html and "saved without widget state" in html
     assert PageExporter().file_extension == ".html"
