@@ -7,7 +7,7 @@ tables, negative fractions, left shifts (``k < 0``) and right shifts, and
 accumulators 0-4 bits narrower than the safe width (so wrap and saturate
 happen) or, one case in four, up to 62 bits wide with 24-32-bit weights and
 16-bit inputs. Returns ``(network, plan, codes)``: every input when there are
-at most 2^12, else 300 seeded random ones and the corners.
+at most 2^10, else 200 seeded random ones and the corners.
 """
 
 from __future__ import annotations
@@ -24,10 +24,10 @@ from fxnet_widgets.core.plan import LayerPlan, Plan
 
 def _codes(rng: np.random.Generator, n_in: int, bits: int) -> np.ndarray:
     hi = (1 << bits) - 1
-    if n_in * bits <= 12:
+    if n_in * bits <= 10:
         return np.array(list(itertools.product(range(hi + 1), repeat=n_in)), dtype=np.int64)
     corners = np.array([[0] * n_in, [hi] * n_in, [hi * (i % 2) for i in range(n_in)]])
-    return np.vstack([corners, rng.integers(0, hi + 1, (300, n_in))]).astype(np.int64)
+    return np.vstack([corners, rng.integers(0, hi + 1, (200, n_in))]).astype(np.int64)
 
 
 def _draw(rng: np.random.Generator, wide: bool) -> tuple[Network, list[dict]]:
