@@ -1,4 +1,5 @@
-"""``fxnet datapath NETWORK PLAN -o DIR [--pipeline auto|N] [--clock MHZ | --video FORMAT] [--testbench [INPUT]]``."""
+"""``fxnet datapath NETWORK PLAN -o DIR [--pipeline auto|N] [--products multiply|shift-add]
+[--clock MHZ | --video FORMAT] [--testbench [INPUT]] [--force] [--json]``."""
 
 from __future__ import annotations
 
@@ -28,6 +29,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="directory to create (missing or empty)")
     p.add_argument("--pipeline", type=_pipeline, default="auto", metavar="auto|N",
                    help="'auto' (registers where a rough iCE40 delay model needs them) or N stages")  # fmt: skip
+    p.add_argument("--products", choices=["multiply", "shift-add"], default="multiply",
+                   help="weight products as constant multiplications (default) or shift-add of CSD digits")  # fmt: skip
     clock = p.add_mutually_exclusive_group()
     clock.add_argument("--clock", type=float, metavar="MHZ", help="clock for --pipeline auto (default 74.25)")
     clock.add_argument("--video", choices=sorted(VIDEO_FORMATS), metavar="FORMAT",
@@ -51,7 +54,7 @@ def run(args: argparse.Namespace) -> int:
     if args.clock is not None and not 0 < args.clock <= 2000:
         raise CliError(f"fxnet datapath: --clock must be above 0 and at most 2000 MHz, not {args.clock!r}")
     r = write_datapath(net, plan, args.output, pipeline=args.pipeline, clock_mhz=args.clock, video=args.video,
-                       testbench=bench, force=args.force)  # fmt: skip
+                       products=args.products, testbench=bench, force=args.force)  # fmt: skip
     if args.json:
         print_json({"directory": str(r.directory), **r.meta})
         return 0

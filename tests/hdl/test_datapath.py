@@ -61,7 +61,8 @@ def _check(d: Path, n_vectors: int) -> None:
 def test_random_plan_bit_exact_in_both_languages(tmp_path: Path, seed: int) -> None:
     net, plan, codes = random_case(seed)
     pipeline = _pipeline(seed, net, plan)
-    r = write_datapath(net, plan, tmp_path / "dp", pipeline=pipeline, testbench=codes)
+    products = "shift-add" if seed % 3 == 2 else "multiply"  # CSD digits through the adder tree, or `*`
+    r = write_datapath(net, plan, tmp_path / "dp", pipeline=pipeline, products=products, testbench=codes)
     if pipeline != "auto":
         assert r.latency == pipeline
     _check(tmp_path / "dp", len(codes))
@@ -214,10 +215,25 @@ def test_pipeline_counts_and_errors(tmp_path: Path) -> None:
         write_datapath(net, plan, tmp_path / "x", clock_mhz=-1)
     with pytest.raises(ValueError, match=r"^video must be one of .*, not '720p'$"):
         write_datapath(net, plan, tmp_path / "x", video="720p")
+    with pytest.raises(ValueError, match=r"^products must be one of multiply, shift-add, not 'csd'$"):
+        write_datapath(net, plan, tmp_path / "x", products="csd")
     assert not (tmp_path / "x").exists()  # nothing half-written
     # a faster clock never needs fewer registers (auto adds them where the estimate is too long)
     lat = [len(plan_datapath(net, plan, clock_mhz=f).cuts) for f in (25.0, 74.25, 300.0, 1000.0)]
     assert lat == sorted(lat) and lat[0] >= 4
+
+
+def test_shift_add_products_are_the_csd_digits(tmp_path: Path) -> None:
+    """``products="shift-add"``: one term per nonzero canonical-signed digit (a weight of 7 = 8 - 1: two terms,
+    Reitwiesner's recoding, from memory), each a signed power of two times the input."""
+    net = Network.from_layers([([[7 / 16, -3 / 16]], [0.0], "identity")], input_bits=4)
+    plan = Plan((LayerPlan(weight_bits=5, weight_frac=4, acc_bits=12, out_bits=8, out_frac=8),))
+    write_datapath(net, plan, tmp_path / "dp", pipeline=0, products="shift-add")
+    v = (tmp_path / "dp" / "fxnet_datapath.v").read_text()
+    terms = re.findall(r"assign (l1_n0_p\d+s\d+) = .* \* (-?)\d+'sd(\d+);", v)  # sign, width, magnitude
+    assert sorted((n, int(m + w)) for n, m, w in terms) == [
+        ("l1_n0_p0s0", -1), ("l1_n0_p0s3", 8), ("l1_n0_p1s0", 1), ("l1_n0_p1s2", -4)
+    ]  # fmt: skip
 
 
 def test_cli_writes_the_datapath_and_reports_bad_input(tmp_path: Path) -> None:

@@ -26,7 +26,15 @@ from ._testbench import bench_files
 from ._verilog import verilog_module
 from ._vhdl import vhdl_entity
 
-__all__ = ["write_datapath", "plan_datapath", "DatapathResult", "DATAPATH_KIND", "VERILOG_FILE", "VHDL_FILE"]
+__all__ = [
+    "write_datapath",
+    "plan_datapath",
+    "DatapathResult",
+    "DATAPATH_KIND",
+    "PRODUCTS",
+    "VERILOG_FILE",
+    "VHDL_FILE",
+]
 
 DATAPATH_KIND = "fxnet.datapath"
 VERILOG_FILE = "fxnet_datapath.v"
@@ -73,16 +81,21 @@ def _clock(clock_mhz: float | None, video: str | None) -> float:
     return float(clock_mhz)
 
 
+PRODUCTS = ("multiply", "shift-add")
+
+
 def plan_datapath(network: Network, plan: Plan, *, pipeline: str | int = "auto", clock_mhz: float | None = None,
-                  video: str | None = None) -> Resolved:  # fmt: skip
+                  video: str | None = None, products: str = "multiply") -> Resolved:  # fmt: skip
     """The datapath's levels and register banks (no files written)."""
     if not isinstance(network, Network):
         raise TypeError(f"network must be a Network, not {type(network).__name__}")
     if not isinstance(plan, Plan):
         raise TypeError(f"plan must be a Plan, not {type(plan).__name__}")
     clock = _clock(clock_mhz, video)
+    if products not in PRODUCTS:
+        raise ValueError(f"products must be one of {', '.join(PRODUCTS)}, not {products!r}")
     design = describe(quantise(network, plan))
-    levels, codes, dec = build_levels(design)
+    levels, codes, dec = build_levels(design, products)
     if pipeline != "auto":
         if isinstance(pipeline, bool) or not isinstance(pipeline, int) or not 0 <= pipeline <= len(levels):
             raise ValueError(f"pipeline must be 'auto' or an integer from 0 to {len(levels)}, not {pipeline!r}")
@@ -111,7 +124,8 @@ def _header(network: Network, plan: Plan, design: Design, r: Resolved, pipeline:
     return lines
 
 
-def _meta(network: Network, design: Design, r: Resolved, pipeline: str | int, files: list[str]) -> dict[str, Any]:
+def _meta(network: Network, design: Design, r: Resolved, pipeline: str | int, files: list[str],
+          products: str) -> dict[str, Any]:  # fmt: skip
     bo = design.layers[-1].out_bits
     layers = []
     for L in design.layers:
@@ -133,6 +147,7 @@ def _meta(network: Network, design: Design, r: Resolved, pipeline: str | int, fi
         "top": "fxnet_datapath",
         "files": {"verilog": VERILOG_FILE, "vhdl": VHDL_FILE, "all": files},
         "pipeline": pipeline,
+        "products": products,
         "clock_mhz": r.clock_mhz,
         "estimated_stage_ns": round(longest(r.levels, set(r.cuts)), 3),
         "estimate_note": "a rough iCE40 delay model used to place registers; not timing",
@@ -164,6 +179,7 @@ def write_datapath(
     pipeline: str | int = "auto",
     clock_mhz: float | None = None,
     video: str | None = None,
+    products: str = "multiply",
     testbench: Any = None,
     force: bool = False,
 ) -> DatapathResult:
@@ -186,6 +202,10 @@ def write_datapath(
     clock_mhz, video
         The clock ``"auto"`` aims at (MHz), or a video format whose pixel
         clock it is (``"1280x720p60"``: 74.25 MHz, the default).
+    products
+        ``"multiply"``: one constant multiplication (``*``) per weight, left to synthesis;
+        ``"shift-add"``: one shifted input per nonzero canonical-signed-digit of the weight,
+        summed by the adder tree (whose levels the pipeline can then cut).
     testbench
         None, True (vectors: every input when there are at most 2^12, else
         1000 seeded random ones and the corners) or input codes (N x n_in):
@@ -205,7 +225,7 @@ def write_datapath(
     """
     if not isinstance(directory, (str, os.PathLike)):
         raise TypeError(f"directory must be a path, not {type(directory).__name__}")
-    r = plan_datapath(network, plan, pipeline=pipeline, clock_mhz=clock_mhz, video=video)
+    r = plan_datapath(network, plan, pipeline=pipeline, clock_mhz=clock_mhz, video=video, products=products)
     design = r.design
     texts: dict[str, str] = {}
     tfiles, twords = {}, {}
@@ -224,7 +244,7 @@ def write_datapath(
         codes = None if testbench is True else np.asarray(testbench)
         texts.update(bench_files(network, plan, design, len(r.cuts), codes))
     files = [META_FILE, *sorted(texts)]
-    meta = _meta(network, design, r, pipeline, files)
+    meta = _meta(network, design, r, pipeline, files, products)
     data = {rel: t.encode("utf-8") for rel, t in texts.items()}
     data[META_FILE] = dumps_json(meta).encode("utf-8")
 

@@ -17,7 +17,7 @@ Operations (``Sig.op`` and ``Sig.args``):
 ``port (i,)``            input ``i`` of ``in_data`` (unsigned input bits)
 ``pass (src,)``          the same value
 ``const (v,)``           a constant
-``mul (src, w)``         ``src * w`` (``w`` a constant weight code)
+``mul (src, w)``         ``src * w`` (``w`` a weight code, or one signed power of two of it)
 ``add (a, b)``           ``a + b``
 ``wrap (src, A)``        two's-complement wrap to ``A`` bits
 ``sat (src, A)``         clamp to the signed ``A``-bit range
@@ -35,6 +35,7 @@ from typing import Any
 
 import numpy as np
 
+from ..analysis.csd import csd
 from ..export._design import Design, LayerDesign
 from ..formats import bits_for_range, shift_round
 
@@ -98,7 +99,15 @@ def _clamp_word(src: Sig, m: int, ilo: int, ihi: int, offset: int, width: int, s
     return Sig(name, width, signed, min(vals) - offset, max(vals) - offset, "clamp", (src, m, ilo, ihi, offset))
 
 
-def _layer_levels(L: LayerDesign, inputs: list[Sig], levels: list[Level]) -> list[Sig]:
+def _digits(w: int, products: str) -> list[tuple[str, int]]:
+    """The product terms of weight ``w``: ``("", w)``, or one ``(suffix, +-2^s)`` per nonzero CSD digit."""
+    if products == "multiply":
+        return [("", w)]
+    ds = csd(w)
+    return [(f"s{len(ds) - 1 - e}", d << (len(ds) - 1 - e)) for e, d in enumerate(ds) if d]
+
+
+def _layer_levels(L: LayerDesign, inputs: list[Sig], levels: list[Level], products: str) -> list[Sig]:
     n, pre = L.number, f"l{L.number}"
     # products (and the bias as a constant term)
     terms: list[list[Sig]] = []
@@ -109,8 +118,9 @@ def _layer_levels(L: LayerDesign, inputs: list[Sig], levels: list[Level]) -> lis
             w = int(L.weights[j, i])
             if w == 0:
                 continue
-            p_lo, p_hi = sorted((w * u.lo, w * u.hi))
-            row.append(_value(f"{pre}_n{j}_p{i}", p_lo, p_hi, "mul", u, w))
+            for suffix, c in _digits(w, products):
+                p_lo, p_hi = sorted((c * u.lo, c * u.hi))
+                row.append(_value(f"{pre}_n{j}_p{i}{suffix}", p_lo, p_hi, "mul", u, c))
         b = int(L.biases[j])
         if b != 0 or not row:
             row.append(_value(f"{pre}_n{j}_bias", b, b, "const", b))
@@ -221,15 +231,19 @@ def _decision_levels(design: Design, codes: list[Sig], levels: list[Level]) -> t
     return passing, cand[0][1]
 
 
-def build_levels(design: Design) -> tuple[list[Level], list[Sig], Sig]:
-    """The datapath's levels, the output code signals and the decision signal."""
+def build_levels(design: Design, products: str = "multiply") -> tuple[list[Level], list[Sig], Sig]:
+    """The datapath's levels, the output code signals and the decision signal.
+
+    ``products``: ``"multiply"`` (one constant multiplication per weight) or ``"shift-add"``
+    (one shifted input per nonzero canonical-signed-digit of the weight, summed by the adder tree).
+    """
     levels: list[Level] = []
     ib = design.input_bits
     ports = [Sig(f"in_x{i}", ib, False, 0, (1 << ib) - 1, "port", (i,)) for i in range(design.n_inputs)]
     levels.append(Level("input", 0, "inputs", ports))
     sigs = ports
     for L in design.layers:
-        sigs = _layer_levels(L, sigs, levels)
+        sigs = _layer_levels(L, sigs, levels, products)
     codes, dec = _decision_levels(design, sigs, levels)
     for li, lev in enumerate(levels):
         for s in lev.sigs:

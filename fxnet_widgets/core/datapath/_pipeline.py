@@ -22,11 +22,13 @@ __all__ = ["DEFAULT_CLOCK_MHZ", "level_delay", "choose_cuts"]
 #: 1280x720p60 pixel clock (CEA-861 / SMPTE 296M): 74.25 MHz
 DEFAULT_CLOCK_MHZ = 74.25
 
-# rough iCE40 figures in ns (from memory of the iCE40 datasheets' timing tables; model only)
-_LOGIC = 1.6  # one LUT4 level with its routing
-_CARRY = 0.15  # one bit of carry chain
-_REGISTER = 2.0  # clock to out + setup + clock skew of one register stage
-_BRAM = 3.0  # block RAM address setup and clock to data out
+# rough figures in ns for the slowest iCE40 family (UltraPlus), read off nextpnr-ice40's critical-path
+# report of one generated datapath on an UP5K (LUT 1.2 + net 1.8; carry 0.3 per bit; clock to out 1.4 +
+# setup 1.2); model only, so "auto" meets the clock on faster iCE40 parts with room to spare
+_LOGIC = 3.0  # one LUT4 level with its routing
+_CARRY = 0.3  # one bit of carry chain
+_REGISTER = 2.6  # clock to out + setup of one register stage
+_BRAM = 4.0  # block RAM address setup and clock to data out
 
 
 def _adder(width: int) -> float:
