@@ -52,6 +52,7 @@ def _check(d: Path, n_vectors: int) -> None:
         assert (res["language"], res["verdict"], res["mismatches"]) == (language, "PASS", 0), out[-3000:]
         assert res["compared"] == n_vectors, out[-3000:]
         assert rc == 0, out[-3000:]
+        assert "warning" not in out.lower(), out[-3000:]  # iverilog -Wall and ghdl -a say nothing
     rc, out = lint(d)
     assert (rc, out.strip()) == (0, ""), out[-3000:]
 
@@ -150,6 +151,21 @@ def test_a_corrupted_table_word_or_weight_fails_the_benches(tmp_path: Path, what
         res = parse(out)
         assert res is not None and res["language"] == language, out[-2000:]
         assert res["verdict"] == "FAIL" and res["mismatches"] > 0 and rc != 0, out[-2000:]
+
+
+@pytest.mark.hdl
+def test_a_bench_for_another_latency_fails(tmp_path: Path) -> None:
+    """The benches check ``out_valid`` clock by clock: one register stage more or less is a failure."""
+    net, plan = _small()
+    codes = default_vectors(2, 4)
+    write_datapath(net, plan, tmp_path / "dut", pipeline=3, testbench=codes)
+    write_datapath(net, plan, tmp_path / "other", pipeline=4, testbench=codes)
+    for name in ("fxnet_tb_stimulus.memh", "fxnet_tb_expect.memh", "fxnet_datapath_tb.v", "fxnet_datapath_tb.vhd"):
+        (tmp_path / "dut" / name).write_bytes((tmp_path / "other" / name).read_bytes())
+    for language, run in (("verilog", run_iverilog), ("vhdl", run_ghdl)):
+        rc, out = run(tmp_path / "dut")
+        res = parse(out)
+        assert res is not None and (res["language"], res["verdict"]) == (language, "FAIL") and rc != 0, out[-2000:]
 
 
 def test_schedule_has_bursts_gaps_and_a_reset_in_flight() -> None:
