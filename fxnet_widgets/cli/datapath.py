@@ -61,6 +61,12 @@ def run(args: argparse.Namespace) -> int:
     if note:
         print(f"input {args.testbench}: {note}")
     print(r.summary())
+    if not r.meta["estimate_fits_clock"]:
+        print(
+            f"note: the delay model's longest stage ({r.meta['estimated_stage_ns']} ns) is longer than the clock "
+            f"period ({1000.0 / r.meta['clock_mhz']:.3f} ns)"
+            + ("; a multiplication is one stage, try --products shift-add" if args.products == "multiply" else "")
+        )
     for name in r.files:
         print(f"  {name}")
     return 0

@@ -150,6 +150,7 @@ def _meta(network: Network, design: Design, r: Resolved, pipeline: str | int, fi
         "products": products,
         "clock_mhz": r.clock_mhz,
         "estimated_stage_ns": round(longest(r.levels, set(r.cuts)), 3),
+        "estimate_fits_clock": longest(r.levels, set(r.cuts)) <= 1000.0 / r.clock_mhz,
         "estimate_note": "a rough iCE40 delay model used to place registers; not timing",
         "stages": r.stage_titles(),
         "ports": {
