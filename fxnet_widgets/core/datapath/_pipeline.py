@@ -110,10 +110,14 @@ def _exact(levels: list[Level], n: int) -> set[int]:
         return set()
     inf = float("inf")
 
+    pre = [0.0]
+    for v in d:
+        pre.append(pre[-1] + v)
+
     def seg(a: int, b: int, cut_at_end: bool) -> float:  # levels a..b inclusive
         if a > b:
             return 0.0
-        return sum(d[a:b]) + (dr[b] if cut_at_end else d[b])
+        return pre[b] - pre[a] + (dr[b] if cut_at_end else d[b])
 
     # best[c][i]: minimal longest stretch of levels 0..i with c cuts, the last one after level i
     best = [[inf] * m for _ in range(n + 1)]
