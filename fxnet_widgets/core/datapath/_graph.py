@@ -226,7 +226,8 @@ def _decision_levels(design: Design, codes: list[Sig], levels: list[Level]) -> t
         cand = new
         last = len(cand) == 1
         passing = [_pass(p, f"out_code{j}" if last else f"am{depth}_code{j}") for j, p in enumerate(passing)]
-        sigs = passing + [s for pair in cand for s in pair]
+        # the last level needs only the winner's index (its code is one of out_codes already)
+        sigs = passing + ([cand[0][1]] if last else [s for pair in cand for s in pair])
         levels.append(Level("decision", 0, f"decision: argmax, level {depth}", sigs))
     return passing, cand[0][1]
 
