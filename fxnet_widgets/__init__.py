@@ -41,6 +41,7 @@ from .core.analysis import (
     throughput,
     tune,
 )
+from .core.datapath import write_datapath
 from .core.demo import build_demo, suggest_plan, write_demo
 from .core.export import export
 from .core.images import RGBImage, read_image
@@ -134,6 +135,7 @@ __all__ = [
     "suggest_plan",
     "train",
     "write_demo",
+    "write_datapath",
     *sorted(_LAZY),
 ]
 

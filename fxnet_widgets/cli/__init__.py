@@ -21,6 +21,7 @@ __all__ = ["main", "SUBCOMMANDS"]
 SUBCOMMANDS = [
     "emulate",
     "export",
+    "datapath",
     "import_onnx",
     "export_onnx",
     "cost",
