@@ -26,6 +26,7 @@ SUBCOMMANDS = [
     "cost",
     "sweep",
     "tune",
+    "refine",
     "train",
     "demo",
     "report",

@@ -71,7 +71,7 @@ def check_exact(r: Refinement):
 def test_demo_narrow_plan_is_exact_and_never_worse(demo, method):
     net, plan, codes, _ = demo
     p = narrow(plan, 6, 1, 5, 2)
-    r = refine(net, p, codes, method=method, seed=3)
+    r = refine(net, p, codes, method=method, seed=3, steps=1500)
     check_exact(r)
     assert r.after.errors <= r.before.errors
     assert r.before.samples == 15_000 and r.before.holdout_samples == 5_000
@@ -227,7 +227,7 @@ def test_labels_target_and_given_holdout(demo):
     labels = emulate(net, plan, codes).float_decisions  # any labels: here the float decisions
     hold = test[::50]
     hold_labels = np.asarray(emulate(net, plan, hold).float_decisions)
-    r = refine(net, p, codes, labels=np.asarray(labels), holdout=hold, holdout_labels=hold_labels)
+    r = refine(net, p, codes, labels=np.asarray(labels), holdout=hold, holdout_labels=hold_labels, steps=1500)
     assert r.target == "labels" and r.after.holdout_samples == hold.shape[0]
     assert r.after.errors <= r.before.errors and r.before.samples == codes.shape[0]
     h = int(np.count_nonzero(emulate(r.network, p, hold).decisions != hold_labels))
@@ -265,3 +265,20 @@ def test_errors(kwargs, message):
     net, plan, grid = tiny()
     with pytest.raises(ValueError, match=f"^{__import__('re').escape(message)}$"):
         refine(net, plan, grid, **kwargs)
+
+
+def test_command_line_writes_an_exact_network(tmp_path, demo):
+    from fxnet_widgets.cli import main
+
+    net, plan, codes, _ = demo
+    p = narrow(plan, 6, 1, 5, 2)
+    p.save(tmp_path / "plan.json")
+    np.save(tmp_path / "codes.npy", codes[:4000])
+    out = tmp_path / "refined.json"
+    args = [str(ASSETS / "network.json"), str(tmp_path / "plan.json"), str(tmp_path / "codes.npy"), "-o", str(out)]
+    assert main(["refine", *args, "--seed", "2", "--quiet"]) == 0
+    refined = Network.load(out)
+    api = refine(net, p, codes[:4000], seed=2)
+    assert refined == api.network  # the file holds exactly what the function returns (JSON floats round-trip)
+    check_exact(Refinement(refined, p, api.before, api.after, "float", "rounding", True, 0.0, ()))
+    assert main(["refine", *args, "--method", "exact"]) == 2
