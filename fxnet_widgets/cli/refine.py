@@ -31,6 +31,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--seed", type=int, default=0, help="seed of the sample, the split and the search")
     p.add_argument("--samples", type=int, default=DEFAULT_SAMPLES, metavar="N",
                    help=f"refine on a seeded sample of N input samples (default {DEFAULT_SAMPLES}; 0: all)")
+    p.add_argument("--uniform", type=int, default=0, metavar="N",
+                   help="also refine on N seeded codes drawn uniformly from the whole input range (float target "
+                        "only): agreement beyond the colours of INPUT, e.g. under other lighting")
     p.add_argument("--reach", type=int, default=1, choices=(1, 2), help="candidates: 1 floor/ceil, 2 one more each")
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -62,6 +65,10 @@ def run(args: argparse.Namespace) -> int:
         raise CliError(f"fxnet refine: --budget must be a positive number of seconds, not {args.budget!r}")
     if args.samples < 0:
         raise CliError(f"fxnet refine: --samples must be at least 0, not {args.samples}")
+    if args.uniform < 0:
+        raise CliError(f"fxnet refine: --uniform must be at least 0, not {args.uniform}")
+    if args.uniform and args.labels:
+        raise CliError("fxnet refine: --uniform needs the float target (no --labels): uniform codes have no labels")
     if args.holdout_labels and not args.holdout:
         raise CliError("fxnet refine: --holdout-labels must come with --holdout")
     if args.holdout and bool(args.labels) != bool(args.holdout_labels):
@@ -74,6 +81,10 @@ def run(args: argparse.Namespace) -> int:
         pick = np.sort(np.random.default_rng(args.seed).choice(flat.shape[0], args.samples, replace=False))
         flat = flat[pick]
         labels = labels[pick] if labels is not None else None
+    if args.uniform:
+        rng = np.random.default_rng([args.seed, 1])
+        extra = rng.integers(0, 1 << net.input_bits, (args.uniform, net.n_in), dtype=np.int64)
+        flat = np.concatenate([flat.astype(np.int64), extra])
     hold = hold_labels = None
     if args.holdout:
         hcodes, _ = load_input(args.holdout, net)

@@ -245,7 +245,7 @@ def refine(
         Rounding: candidates per value (1: floor and ceil; 2: one more each side); every
         combination is tried up to ``exhaustive_max`` free values and ``exhaustive_work``
         combination x distinct-sample evaluations, else ``steps`` annealing moves (default
-        300 per free value) and coordinate descent.
+        200 per free value) and coordinate descent.
     epochs, learning_rate, patience
         Fine-tuning: full-batch steps, Adam step in weight LSBs, steps without held-out gain.
 

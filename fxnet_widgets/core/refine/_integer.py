@@ -16,7 +16,10 @@ import numpy as np
 
 from ..kernel import IntegerNetwork, post_accumulate
 
-__all__ = ["Samples", "IntegerPass", "decisions_from_codes"]
+__all__ = ["Samples", "IntegerPass", "decisions_from_codes", "LUT_SPAN"]
+
+#: the widest range of exact sums tabulated per layer (wider: post_accumulate on every sample)
+LUT_SPAN = 1 << 20
 
 
 class Samples:
@@ -66,16 +69,64 @@ class IntegerPass:
         self.q_b = [np.array(a, dtype=np.int64) for a in q_b]
         self.u: list[np.ndarray] = [samples.inputs]
         self.s: list[np.ndarray] = []
+        self._lut: list[tuple[int, np.ndarray] | None] = [None] * len(self.layers)
+        # the range of every layer's inputs: the data's for layer 1, the previous table's or clamp's after
+        ins = samples.inputs
+        self._u_range = [(ins.min(axis=1), ins.max(axis=1)) if ins.size else (np.zeros(ins.shape[0], np.int64),) * 2]
+        for L in self.layers[:-1]:
+            self._u_range.append((np.full(L.n_out, L.code_min, np.int64), np.full(L.n_out, L.code_max, np.int64)))
         for li in range(len(self.layers)):
-            self.s.append(self.q_b[li][:, None] + self.q_w[li] @ self.u[li])
-            self.u.append(self._codes(li, self.s[li]))
+            self.s.append(self._sums(li))
+            self.u.append(self._codes(li, self.s[li], slice(None)))
         self._dirty: dict[int, set[int]] = {}
         last = self.layers[-1]
         self._span = float(last.code_max - last.code_min + 1)
+        self._cost: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+        if last.n_out == 1 and self.threshold_code is not None and samples.target.size:
+            # per (target, code), flattened: is it an error, and how far from the right decision
+            c = np.arange(last.code_min, last.code_max + 1, dtype=np.int64)
+            thr = self.threshold_code
+            wrong = np.concatenate([c >= thr, c < thr]).astype(np.int64)
+            dist = np.concatenate([c - thr + 1, thr - c]) * wrong
+            offset = samples.target * c.shape[0] - last.code_min
+            self._cost = (wrong, dist, offset)
 
     # -- evaluation ---------------------------------------------------------------
-    def _codes(self, li: int, s: np.ndarray) -> np.ndarray:
-        return np.asarray(post_accumulate(self.layers[li], s)["codes"], dtype=np.int64)
+    def _sums(self, li: int) -> np.ndarray:
+        """Exact sums ``q_b + q_w u`` of a layer (n_out x P, int64)."""
+        q_w, u = self.q_w[li], self.u[li]
+        if q_w.size > 64:
+            return self.q_b[li][:, None] + q_w @ u
+        s = np.repeat(self.q_b[li][:, None], u.shape[1], axis=1)
+        for i in range(q_w.shape[1]):  # a few multiply-adds beat numpy's integer matmul on small layers
+            s += q_w[:, i : i + 1] * u[i]
+        return s
+
+    def _codes(self, li: int, s: np.ndarray, rows: slice | list[int]) -> np.ndarray:
+        """Steps 4-7 on exact sums: the kernel's post_accumulate, tabulated once over the sums' range.
+
+        The table covers the interval bound of the sums of ``rows`` (from their integers and the
+        range of the layer's inputs), with headroom, and is rebuilt when a bound leaves it.
+        """
+        layer = self.layers[li]
+        if not s.size:
+            return np.asarray(post_accumulate(layer, s)["codes"], dtype=np.int64)
+        q_w, q_b = self.q_w[li][rows], self.q_b[li][rows]
+        u_lo, u_hi = self._u_range[li]
+        a, b = q_w * u_lo, q_w * u_hi
+        lo = int((q_b + np.minimum(a, b).sum(axis=1)).min())
+        hi = int((q_b + np.maximum(a, b).sum(axis=1)).max())
+        lut = self._lut[li]
+        if lut is None or lo < lut[0] or hi >= lut[0] + lut[1].shape[0]:
+            if lut is not None:
+                lo, hi = min(lo, lut[0]), max(hi, lut[0] + lut[1].shape[0] - 1)
+            pad = (hi - lo) // 4 + 16  # headroom: nearby integers do not rebuild it
+            lo, hi = lo - pad, hi + pad
+            if hi - lo + 1 > LUT_SPAN:
+                return np.asarray(post_accumulate(layer, s)["codes"], dtype=np.int64)
+            table = np.asarray(post_accumulate(layer, np.arange(lo, hi + 1, dtype=np.int64))["codes"], dtype=np.int64)
+            lut = self._lut[li] = (lo, table)
+        return lut[1].take(s - lut[0])
 
     def set(self, li: int, j: int, i: int, value: int) -> None:
         """Use integer ``value`` for weight ``(j, i)`` of layer ``li`` (``i == n_in``: the bias)."""
@@ -97,18 +148,15 @@ class IntegerPass:
         if not self._dirty:
             return
         dirty, self._dirty = self._dirty, {}
-        upstream_changed = False
-        for li in range(min(dirty), len(self.layers)):
-            if upstream_changed:
-                self.s[li] = self.q_b[li][:, None] + self.q_w[li] @ self.u[li]
-                new = self._codes(li, self.s[li])
-                upstream_changed = not np.array_equal(new, self.u[li + 1])
-                self.u[li + 1] = new
-            elif li in dirty:
+        first = min(dirty)
+        for li in range(first, len(self.layers)):
+            if li > first:  # its inputs changed: the whole layer again
+                self.s[li] = self._sums(li)
+                self.u[li + 1] = self._codes(li, self.s[li], slice(None))
+            else:
                 rows = sorted(dirty[li])
-                new = self._codes(li, self.s[li][rows])
-                upstream_changed = not np.array_equal(new, self.u[li + 1][rows])
-                self.u[li + 1][rows] = new
+                sel: slice | list[int] = slice(rows[0], rows[0] + 1) if len(rows) == 1 else rows
+                self.u[li + 1][sel] = self._codes(li, self.s[li][sel], sel)
 
     def decisions(self) -> np.ndarray:
         self.refresh()
@@ -130,6 +178,13 @@ class IntegerPass:
         codes = self.u[-1]
         target = self.samples.target
         counts = self.samples.counts
+        if self._cost is not None:
+            wrong_t, dist_t, offset = self._cost
+            idx = offset + codes[0]
+            errors = int(np.dot(counts, wrong_t.take(idx)))
+            if not errors:
+                return 0.0, 0
+            return errors + int(np.dot(counts, dist_t.take(idx))) / (self._span * self.samples.total + 1.0), errors
         dec = decisions_from_codes(codes, self.threshold_code)
         wrong = dec != target
         errors = int(counts[wrong].sum())
@@ -142,5 +197,5 @@ class IntegerPass:
         else:
             cw = codes[:, wrong]
             dist = cw.max(axis=0) - cw[target[wrong], np.arange(cw.shape[1])] + 1
-        tie = float((dist * counts[wrong]).sum()) / (self._span * self.samples.total + 1.0)
+        tie = int(np.dot(dist, counts[wrong])) / (self._span * self.samples.total + 1.0)
         return errors + tie, errors

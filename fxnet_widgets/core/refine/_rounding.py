@@ -161,7 +161,7 @@ def _exhaustive(ip: IntegerPass, free: list[FreeValue], combos: int, start_energ
 def _anneal(ip: IntegerPass, free: list[FreeValue], seed: int, steps: int | None, start_energy: float,
             start_errors: int, clock: _Clock, progress: Callable[[int, int], None] | None) -> RoundingOutcome:
     rng = np.random.default_rng(seed)
-    n_steps = 300 * len(free) if steps is None else steps
+    n_steps = 200 * len(free) if steps is None else steps
     state = [_current(ip, f) for f in free]
     energy = start_energy
     best_energy, best = energy, list(state)
