@@ -1,6 +1,8 @@
 """refine: exactly representable results, never worse, deterministic, brute-force and gradient checks."""
 
 import itertools
+import re
+import time
 from fractions import Fraction
 from pathlib import Path
 
@@ -14,7 +16,7 @@ from fxnet_widgets.core.formats import ROUNDINGS
 from fxnet_widgets.core.images import read_image
 from fxnet_widgets.core.kernel import emulate, quantise
 from fxnet_widgets.core.network import Network
-from fxnet_widgets.core.plan import Plan
+from fxnet_widgets.core.plan import LayerPlan, Plan
 from fxnet_widgets.core.refine import Refinement, exact_network, refine
 from fxnet_widgets.core.refine._finetune import Objective, integer_loss, relaxed_loss
 from fxnet_widgets.core.refine._integer import IntegerPass, Samples
@@ -263,7 +265,7 @@ def test_full_input_scale_is_folded():
 ])
 def test_errors(kwargs, message):
     net, plan, grid = tiny()
-    with pytest.raises(ValueError, match=f"^{__import__('re').escape(message)}$"):
+    with pytest.raises(ValueError, match=f"^{re.escape(message)}$"):
         refine(net, plan, grid, **kwargs)
 
 
@@ -282,3 +284,41 @@ def test_command_line_writes_an_exact_network(tmp_path, demo):
     assert refined == api.network  # the file holds exactly what the function returns (JSON floats round-trip)
     check_exact(Refinement(refined, p, api.before, api.after, "float", "rounding", True, 0.0, ()))
     assert main(["refine", *args, "--method", "exact"]) == 2
+
+
+def _other_networks():
+    rng = np.random.default_rng(5)
+    relu3 = Network.from_layers([(rng.normal(0, 4, (4, 3)), rng.normal(0, 0.5, 4), "relu"),
+                                 (rng.normal(0, 2, (3, 4)), rng.normal(0, 0.5, 3), "identity")],
+                                classes=["a", "b", "c"])
+    relu_plan = Plan(tuple(LayerPlan(weight_bits=4, weight_frac=1, acc_bits=20, out_bits=6, out_frac=4)
+                           for _ in range(2)))
+    tanh = Network.from_layers([(rng.normal(0, 4, (3, 3)), rng.normal(0, 0.5, 3), "tanh"),
+                                (rng.normal(0, 2, (1, 3)), rng.normal(0, 0.5, 1), "sigmoid")])
+    tanh_plan = Plan.uniform(tanh, weight_bits=4, weight_frac=1, acc_bits=20, out_bits=6, table_bits=8, table_frac=4)
+    return [(relu3, relu_plan), (tanh, tanh_plan)]
+
+
+@pytest.mark.parametrize("case", [0, 1], ids=["relu-identity-3-classes", "tanh-sigmoid"])
+@pytest.mark.parametrize("method", ["rounding", "finetune", "both"])
+def test_other_activations_and_several_classes(case, method):
+    net, plan = _other_networks()[case]
+    codes = np.random.default_rng(case).integers(0, 256, (3000, 3))
+    r = refine(net, plan, codes, method=method, steps=600, epochs=80)
+    assert r.after.errors <= r.before.errors
+    check_exact(r)
+    labels = np.asarray(emulate(net, plan, codes).float_decisions)
+    r2 = refine(net, plan, codes, labels=labels, method=method, steps=600, epochs=80)
+    assert r2.target == "labels" and r2.after.errors <= r2.before.errors
+
+
+def test_time_budget_is_kept(demo):
+    net, plan, codes, _ = demo
+    p = narrow(plan, 6, 1, 5, 2)
+    t0 = time.monotonic()
+    r = refine(net, p, codes, method="both", budget_s=0.5)
+    # the budget is checked every few evaluations, so the overrun is bounded by a handful of them
+    # plus the final emulations; generous on a shared machine
+    assert time.monotonic() - t0 < 4.0
+    assert r.after.errors <= r.before.errors
+    check_exact(r)
