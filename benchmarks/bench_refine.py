@@ -144,8 +144,8 @@ def part_tune(net: Network, codes: np.ndarray, test: np.ndarray, budget: float =
 
 def part_random(n_networks: int) -> None:
     print(f"3. {n_networks} random 3-3-1 networks, each trained on its own generated scene "
-          "(seeded), at 5-bit weights (refine: both, 12,000 pixels of which 3,000 held out)")
-    reductions, worse, rows = [], 0, []
+          "(seeded), at 5-bit weights (refine: both, on 12,000 of the scene's pixels)")
+    reductions, worse, worse_rest, rows = [], 0, 0, []
     seed = -1
     while len(rows) < n_networks:
         seed += 1
@@ -156,15 +156,18 @@ def part_random(n_networks: int) -> None:
         net = train(pixels, seed=seed, n_samples=6000, hidden=3).network
         plan = suggest_plan(net, weight_bits=5, table_bits=10, out_bits=6)
         codes = scene.image.reshape(-1, 3)
-        sample = codes[np.random.default_rng(seed).choice(codes.shape[0], 12_000, replace=False)]
+        order = np.random.default_rng(seed).permutation(codes.shape[0])
+        sample, rest = codes[order[:12_000]], codes[order[12_000:]]
         r = refine(net, plan, sample, method="both", seed=seed)
         worse += r.after.errors > r.before.errors
-        hb, ha = r.before.holdout_errors, r.after.holdout_errors
-        assert hb is not None and ha is not None
+        # the rest of the scene: never seen by refine (its own held-out quarter steers the early stop)
+        hb, ha = disagreement(net, net, plan, rest), disagreement(net, r.network, plan, rest)
+        worse_rest += ha > hb
         reductions.append((hb - ha) / hb if hb else 0.0)
         rows.append(f"{hb}->{ha}")
-    print(f"   held-out disagreement per network: {', '.join(rows)}")
-    print(f"   median reduction of held-out disagreement {100 * float(np.median(reductions)):.1f} %; "
+    print("   disagreement on the rest of each scene (218,400 pixels never seen), plain -> refined: "
+          f"{', '.join(rows)}")
+    print(f"   median reduction there {100 * float(np.median(reductions)):.1f} %; worse there: {worse_rest}; "
           f"worse on the refined samples: {worse} of {n_networks} (target 0)")
 
 

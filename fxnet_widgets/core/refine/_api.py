@@ -350,7 +350,8 @@ def refine(
         ft = finetune(params, intnet, samples, obj, hold_samples, steps=epochs, learning_rate=learning_rate,
                       patience=patience, deadline=ft_deadline, stop=stop, progress=report)
         params, q_w, q_b = ft.params, ft.q_w, ft.q_b
-        log.append(f"fine-tuning: {ft.steps} steps ({ft.stopped}), kept step {ft.best_step}: "
+        chosen = "best on the held-out samples" if hold_samples is not None else "best on the samples refined on"
+        log.append(f"fine-tuning: {ft.steps} steps ({ft.stopped}), kept step {ft.best_step} ({chosen}): "
                    f"{ft.start_errors} -> {ft.train_errors} errors on the samples refined on")
         span[0] = span[1]
     if method in ("rounding", "both"):
