@@ -322,3 +322,25 @@ def test_time_budget_is_kept(demo):
     assert time.monotonic() - t0 < 4.0
     assert r.after.errors <= r.before.errors
     check_exact(r)
+
+
+@pytest.mark.parametrize("overflow", ["wrap", "saturate"])
+@pytest.mark.parametrize("index_round", ["floor", "half-even"])
+def test_integer_pass_agrees_with_the_kernel_with_overflows_and_clamps(demo, overflow, index_round):
+    # a narrow accumulator overflows and a short table clamps: the search's pass must still be the kernel's
+    net, plan, codes, _ = demo
+    p = narrow(plan, 6, 1, 5, 2).replace(acc_overflow=overflow, index_round=index_round, table_bits=6)
+    p = p.replace(layer=0, acc_bits=12)
+    sub = codes[:2000]
+    e0 = emulate(net, p, sub)
+    assert e0.event_totals()["acc_overflow"] > 0 and e0.event_totals()["table_high"] > 0
+    r = refine(net, p, sub, steps=300, holdout_fraction=0)  # refine raises if its count and the kernel's differ
+    assert r.after.errors <= r.before.errors
+    intnet = quantise(net, p)
+    samples = Samples(sub, np.zeros(sub.shape[0], dtype=np.int64))
+    ip = IntegerPass(intnet, samples, [L.q_w for L in intnet.layers], [L.q_b for L in intnet.layers])
+    ip.set(0, 0, 3, int(ip.q_b[0][0]) + 700)
+    ip.set(1, 0, 1, int(ip.q_w[1][0, 1]) - 3)
+    rows = {tuple(row): d for row, d in zip(samples.inputs.T.tolist(), ip.decisions().tolist())}
+    e = emulate(exact_network(net, intnet, ip.q_w, ip.q_b), p, sub)
+    assert np.array_equal(np.array([rows[tuple(row)] for row in sub.tolist()]), e.decisions)
