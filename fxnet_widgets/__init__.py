@@ -56,6 +56,7 @@ from .core.labels import (
     sample_pixels,
 )
 from .core.onnx_io import load_onnx, save_onnx
+from .core.refine import Refinement, refine
 from .core.scenes import Scene, make_scene
 from .core.training import Training, TrainingReport, fit, train
 
@@ -132,6 +133,8 @@ __all__ = [
     "save_npz",
     "load_onnx",
     "save_onnx",
+    "Refinement",
+    "refine",
     "suggest_plan",
     "train",
     "write_demo",

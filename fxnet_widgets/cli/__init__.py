@@ -27,6 +27,7 @@ SUBCOMMANDS = [
     "cost",
     "sweep",
     "tune",
+    "refine",
     "train",
     "demo",
     "report",
