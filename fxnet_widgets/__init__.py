@@ -75,6 +75,7 @@ _LAZY: dict[str, str] = {
     "demo_explorer": "fxnet_widgets.widgets.explorer",
     "MetricsPanel": "fxnet_widgets.widgets.metrics",
     "PreviewPanel": "fxnet_widgets.widgets.preview",
+    "SearchPanel": "fxnet_widgets.widgets.search_panel",
     "Session": "fxnet_widgets.widgets.session",
     "StatusLinePanel": "fxnet_widgets.widgets.status",
     "SweepProgressBar": "fxnet_widgets.widgets.status",
