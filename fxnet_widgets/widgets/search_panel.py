@@ -25,14 +25,30 @@ import bqplot as bq
 import ipywidgets as w
 import numpy as np
 
-from ..core.analysis import COST_KEYS, SerialExecutor, SweepRecord, TuneResult, pareto_front, sweep, tune
-from ..core.analysis import error_metrics, hardware_cost
+from ..core.analysis import (
+    COST_KEYS,
+    SerialExecutor,
+    SweepRecord,
+    TuneResult,
+    error_metrics,
+    hardware_cost,
+    pareto_front,
+    sweep,
+    tune,
+)
 from ..core.kernel import emulate
 from ..core.labels import LabelledPixels
 from ..core.plan import Plan
 from .search_grid import GridEditor, grid_size, sub_grid
 from .search_run import (
-    EVENT_CLASSES, RecordingExecutor, StopRequested, dominance_front, event_class, plan_q, rate_text, tune_path,
+    EVENT_CLASSES,
+    RecordingExecutor,
+    StopRequested,
+    dominance_front,
+    event_class,
+    plan_q,
+    rate_text,
+    tune_path,
 )  # fmt: skip
 
 __all__ = ["SearchPanel"]
@@ -294,7 +310,8 @@ class SearchPanel(w.VBox):
             if done == 0:
                 rounds[0] += 1
             self._set_progress(done, total)
-            self.rate.value = f"round {rounds[0]}: " + rate_text(len(self._records), None, time.perf_counter() - self._t0)
+            spent = time.perf_counter() - self._t0
+            self.rate.value = f"round {rounds[0]}: " + rate_text(len(self._records), None, spent)
 
         live = RecordingExecutor(self.executor, self._add, self._stop)
         result = tune(self.network, self.codes, budget, labels=self.labels, cost=cost, executor=live,
@@ -375,7 +392,7 @@ class SearchPanel(w.VBox):
         self.current = bq.Scatter(x=[], y=[], scales=sc, colors=["#111111"], marker="diamond", default_size=140,
                                   labels=["explorer's plan"], display_legend=True)  # fmt: skip
         self.x_axis = bq.Axis(scale=self.xs, label=self.cost_box.value)
-        self.y_axis = bq.Axis(scale=self.ys, orientation="vertical", label=_Y["mismatch"], tick_format=".3~f")
+        self.y_axis = bq.Axis(scale=self.ys, side="left", label=_Y["mismatch"], tick_format=".3~f")
         marks = [self.budget_line, self.front_line, self.path_line, *self.points.values(), self.current]
         self.figure = bq.Figure(marks=marks, axes=[self.x_axis, self.y_axis], legend_location="top-right",
                                 title="plans: cost against error", fig_margin={"top": 40, "bottom": 50, "left": 70,

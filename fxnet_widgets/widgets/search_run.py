@@ -34,7 +34,7 @@ EVENT_CLASSES = ("no events", "clamps", "overflow")
 
 
 def event_class(record: SweepRecord, relu: bool = False) -> str:
-    """``overflow`` (an accumulator overflowed), ``clamps`` (a table index, weight or bias was clamped) or ``no events``.
+    """``overflow`` (an accumulator overflowed), ``clamps`` (a table index, weight or bias clamped), or ``no events``.
 
     With ``relu`` (the network has relu layers) ``table_low`` is left out: on a
     relu neuron it counts the times the unit is off, not an error.
