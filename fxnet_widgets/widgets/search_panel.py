@@ -21,7 +21,6 @@ import time
 from dataclasses import replace
 from typing import Any
 
-import bqplot as bq
 import ipywidgets as w
 import numpy as np
 
@@ -40,6 +39,7 @@ from ..core.kernel import emulate
 from ..core.labels import LabelledPixels
 from ..core.plan import Plan
 from .search_grid import GridEditor, grid_size, sub_grid
+from .search_plot import TradeOffFigure, moves_html
 from .search_run import (
     EVENT_CLASSES,
     RecordingExecutor,
@@ -53,7 +53,6 @@ from .search_run import (
 
 __all__ = ["SearchPanel"]
 
-_COLOURS = {"no events": "#4a6fa5", "clamps": "#e69f00", "overflow": "#d62d2d"}
 _Y = {"mismatch": "decisions differing from float (%)", "accuracy": "accuracy on labels (%)"}
 
 
@@ -324,7 +323,7 @@ class SearchPanel(w.VBox):
         except ValueError as exc:
             self.path = []
             self.error = f"path: {exc}"
-        self.moves.value = self._moves_html(result)
+        self.moves.value = moves_html(result, self.codes)
 
     def _add(self, records: Any) -> None:
         with self._lock:
@@ -371,33 +370,12 @@ class SearchPanel(w.VBox):
     # -- drawing -------------------------------------------------------------------------
     def _build_figure(self) -> None:
         self._relu = any(L.activation == "relu" for L in self.network.layers)
-        self.xs, self.ys = bq.LinearScale(), bq.LinearScale()
-        sc = {"x": self.xs, "y": self.ys}
-        self.points: dict[str, bq.Scatter] = {}
         self._index: dict[str, list[int]] = {c: [] for c in EVENT_CLASSES}
-        for cls in EVENT_CLASSES:
-            m = bq.Scatter(x=[], y=[], scales=sc, colors=[_COLOURS[cls]], default_size=36, labels=[cls],
-                           display_legend=True, names=[], display_names=False,
-                           tooltip=bq.Tooltip(fields=["name"], labels=["plan"]),
-                           interactions={"hover": "tooltip", "click": "select"})  # fmt: skip
-            m.on_element_click(lambda _m, c, cls=cls: self._on_click(cls, c))
-            m.on_hover(lambda _m, c, cls=cls: self._on_hover(cls, c))
-            self.points[cls] = m
-        self.front_line = bq.Lines(x=[], y=[], scales=sc, colors=["#d62d7b"], labels=["Pareto front"],
-                                   display_legend=True)  # fmt: skip
-        self.path_line = bq.Lines(x=[], y=[], scales=sc, colors=["#2d6a2d"], marker="triangle-down",
-                                  marker_size=40, labels=["tune path"], display_legend=True)  # fmt: skip
-        self.budget_line = bq.Lines(x=[], y=[], scales=sc, colors=["#888888"], line_style="dashed",
-                                    labels=["budget"], display_legend=True)  # fmt: skip
-        self.current = bq.Scatter(x=[], y=[], scales=sc, colors=["#111111"], marker="diamond", default_size=140,
-                                  labels=["explorer's plan"], display_legend=True)  # fmt: skip
-        self.x_axis = bq.Axis(scale=self.xs, label=self.cost_box.value)
-        self.y_axis = bq.Axis(scale=self.ys, side="left", label=_Y["mismatch"], tick_format=".3~f")
-        marks = [self.budget_line, self.front_line, self.path_line, *self.points.values(), self.current]
-        self.figure = bq.Figure(marks=marks, axes=[self.x_axis, self.y_axis], legend_location="top-right",
-                                title="plans: cost against error", fig_margin={"top": 40, "bottom": 50, "left": 70,
-                                                                               "right": 20},
-                                layout=w.Layout(width="620px", height="380px"))  # fmt: skip
+        self.plot = TradeOffFigure(self._on_click, self._on_hover, self.cost_box.value, _Y["mismatch"])
+        p = self.plot
+        self.figure, self.points, self.current = p.figure, p.points, p.current
+        self.x_axis, self.y_axis = p.x_axis, p.y_axis
+        self.front_line, self.path_line, self.budget_line = p.front_line, p.path_line, p.budget_line
 
     def redraw(self) -> None:
         """Draw the records, the front, the path, the budget and the explorer's plan (also after a chooser change)."""
@@ -405,29 +383,23 @@ class SearchPanel(w.VBox):
         recs = self.records
         ok = [(i, r) for i, r in enumerate(recs) if r.ok]
         acc = self.y_box.value == "accuracy"
+        y_key = (lambda r: -self._y(r)) if acc else self._y
+        front = dominance_front(recs, self._x, y_key)
+        xs = [self._x(r) for _, r in ok]
+        b = 100.0 * float(self.budget_box.value)
         with self.figure.hold_sync():
             for cls, m in self.points.items():
                 sel = [(i, r) for i, r in ok if event_class(r, self._relu) == cls]
                 self._index[cls] = [i for i, _ in sel]
                 with m.hold_sync():
-                    m.x = np.array([self._x(r) for _, r in sel], dtype=np.float64)
-                    m.y = np.array([self._y(r) for _, r in sel], dtype=np.float64)
                     m.names = np.array([plan_q(self.network, r.plan).replace("\n", " | ") for _, r in sel], dtype=str)
-            front = dominance_front(recs, self._x, (lambda r: -self._y(r)) if acc else self._y)
-            with self.front_line.hold_sync():
-                self.front_line.x = np.array([self._x(r) for r in front], dtype=np.float64)
-                self.front_line.y = np.array([self._y(r) for r in front], dtype=np.float64)
-            with self.path_line.hold_sync():
-                self.path_line.x = np.array([self._x(r) for r in self.path], dtype=np.float64)
-                self.path_line.y = np.array([self._y(r) for r in self.path], dtype=np.float64)
-            xs = [self._x(r) for _, r in ok]
-            with self.budget_line.hold_sync():
-                if xs and not acc:
-                    b = 100.0 * float(self.budget_box.value)
-                    self.budget_line.x = np.array([min(xs), max(xs)], dtype=np.float64)
-                    self.budget_line.y = np.array([b, b], dtype=np.float64)
-                else:
-                    self.budget_line.x = self.budget_line.y = np.zeros(0)
+                    self.plot.set_xy(m, [self._x(r) for _, r in sel], [self._y(r) for _, r in sel])
+            self.plot.set_xy(self.front_line, [self._x(r) for r in front], [self._y(r) for r in front])
+            self.plot.set_xy(self.path_line, [self._x(r) for r in self.path], [self._y(r) for r in self.path])
+            if xs and not acc:
+                self.plot.set_xy(self.budget_line, [min(xs), max(xs)], [b, b])
+            else:
+                self.plot.set_xy(self.budget_line, [], [])
             self.x_axis.label = self.cost_box.value
             self.y_axis.label = _Y[self.y_box.value]
         self._mark_current()
@@ -451,22 +423,7 @@ class SearchPanel(w.VBox):
 
     def _mark_current(self) -> None:
         x, y = self.current_point()
-        with self.current.hold_sync():
-            self.current.x = np.array([x], dtype=np.float64)
-            self.current.y = np.array([y], dtype=np.float64)
-
-    def _moves_html(self, result: TuneResult) -> str:
-        n = self.codes.shape[0] if self.codes.ndim == 2 else int(np.prod(self.codes.shape[:-1]))
-        rows = [f"<tr><td>start</td><td></td><td></td><td>{result.records[0].cost}</td>"
-                f"<td>{result.records[0].mismatch}</td></tr>"]  # fmt: skip
-        for k, s in enumerate(result.steps):
-            rows.append(f"<tr><td>{k + 1}</td><td>{html.escape(s.move)}</td><td>{s.layer + 1}</td>"
-                        f"<td>{s.cost}</td><td>{s.mismatch}</td></tr>")  # fmt: skip
-        head = (f"<b>tune path</b>: {len(result.steps)} accepted moves, {len(result.records)} plans evaluated "
-                f"on {n} samples; verified {'yes' if result.verified else 'NO'}")  # fmt: skip
-        return (f"<div style='font-size:11px'>{head}<table style='border-collapse:collapse'><thead><tr>"
-                f"<th>step</th><th>move (bits down)</th><th>layer</th><th>{html.escape(result.cost_key)}</th>"
-                f"<th>differ</th></tr></thead><tbody>{''.join(rows)}</tbody></table></div>")  # fmt: skip
+        self.plot.set_xy(self.current, [x], [y])
 
     def summary(self) -> str:
         """Deterministic text: what ran, how many plans, and the front (for notebooks and reports)."""
