@@ -66,6 +66,7 @@ _LAZY: dict[str, str] = {
     "save_report": "fxnet_widgets.report",
     "BoundaryPanel": "fxnet_widgets.widgets.boundary",
     "CubePanel": "fxnet_widgets.widgets.boundary",
+    "ComparePanel": "fxnet_widgets.widgets.compare",
     "SlicePlot": "fxnet_widgets.widgets.boundary",
     "PlanControlsPanel": "fxnet_widgets.widgets.controls",
     "EventsPlot": "fxnet_widgets.widgets.events",
