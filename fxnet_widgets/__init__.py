@@ -75,6 +75,7 @@ _LAZY: dict[str, str] = {
     "Explorer": "fxnet_widgets.widgets.explorer",
     "demo_explorer": "fxnet_widgets.widgets.explorer",
     "MetricsPanel": "fxnet_widgets.widgets.metrics",
+    "MetricsGlancePanel": "fxnet_widgets.widgets.glance",
     "PreviewPanel": "fxnet_widgets.widgets.preview",
     "SearchPanel": "fxnet_widgets.widgets.search_panel",
     "Session": "fxnet_widgets.widgets.session",
