@@ -56,6 +56,16 @@ __all__ = ["SearchPanel"]
 _Y = {"mismatch": "decisions differing from float (%)", "accuracy": "accuracy on labels (%)"}
 
 
+def _x_of(r: SweepRecord, key: str) -> float:
+    """A record's cost total ``key`` (every total is in ``r.costs``; ``r.cost`` is the run's)."""
+    return float(r.costs.get(key, r.cost) if r.costs else r.cost)  # type: ignore[arg-type]
+
+
+def _y_of(r: SweepRecord, accuracy: bool) -> float:
+    """Accuracy on labels or disagreement with float, in percent."""
+    return 100.0 * float((r.accuracy if accuracy else r.mismatch_fraction) or 0.0)
+
+
 class SearchPanel(w.VBox):
     """Grid editor, budget, cost, sweep / tune / stop, progress, and the linked scatter.
 
@@ -88,7 +98,7 @@ class SearchPanel(w.VBox):
 
     def __init__(self, explorer: Any, grid: Any = None, *, budget: float | None = None, cost: str = "total_bits",
                  labels: Any = None, executor: Any = None, codes: Any = None, layer: int | None = 0,
-                 chunk_seconds: float = 0.2) -> None:  # fmt: skip
+                 chunk_seconds: float = 0.1) -> None:  # fmt: skip
         session = explorer.session
         self.explorer = explorer
         self.network = session.network
@@ -135,6 +145,7 @@ class SearchPanel(w.VBox):
         self._running = False
         self._drawn_at = 0.0
         self._current: dict[tuple[Plan, str], tuple[float, float | None, float | None]] = {}
+        self._metas: dict[int, tuple[SweepRecord, str, str]] = {}
         #: the :class:`TuneResult` of the last tune (None after a sweep)
         self.tune_result: TuneResult | None = None
         #: the tune's path: the start and each accepted move's record
@@ -182,13 +193,7 @@ class SearchPanel(w.VBox):
         return self._running
 
     def _x(self, r: SweepRecord) -> float:
-        key = self.cost_box.value
-        return float(r.costs.get(key, r.cost) if r.costs else r.cost)  # type: ignore[arg-type]
-
-    def _y(self, r: SweepRecord) -> float:
-        if self.y_box.value == "accuracy":
-            return 100.0 * float(r.accuracy or 0.0)
-        return 100.0 * float(r.mismatch_fraction or 0.0)
+        return _x_of(r, self.cost_box.value)
 
     # -- running -------------------------------------------------------------------------
     def run(self, wait: bool = False) -> None:
@@ -241,6 +246,7 @@ class SearchPanel(w.VBox):
         self.kind, self.error, self.tune_result, self.path = kind, "", None, []
         with self._lock:
             self._records = []
+        self._metas = {}
         self.moves.value = ""
         self._t0 = time.perf_counter()
         self.sweep_button.disabled = self.tune_button.disabled = True
@@ -300,7 +306,7 @@ class SearchPanel(w.VBox):
             self._add([replace(r, index=r.index + pos) for r in got])
             pos += n
             self._set_progress(pos, total)
-            target = max(1, min(4 * target, int(self.chunk_seconds * n / max(took, 1e-6))))
+            target = max(1, min(2 * target, int(self.chunk_seconds * n / max(took, 1e-6))))
 
     def _tune(self, budget: float, cost: str) -> None:
         rounds = [0]
@@ -383,26 +389,37 @@ class SearchPanel(w.VBox):
         recs = self.records
         ok = [(i, r) for i, r in enumerate(recs) if r.ok]
         acc = self.y_box.value == "accuracy"
-        y_key = (lambda r: -self._y(r)) if acc else self._y
-        front = dominance_front(recs, self._x, y_key)
-        xs = [self._x(r) for _, r in ok]
-        b = 100.0 * float(self.budget_box.value)
+        key = self.cost_box.value
+        xy = {id(r): (_x_of(r, key), _y_of(r, acc)) for _, r in ok}
+        front = dominance_front(recs, lambda r: xy[id(r)][0], lambda r: -xy[id(r)][1] if acc else xy[id(r)][1])
+        path = [_x_of(r, key) for r in self.path], [_y_of(r, acc) for r in self.path]
         with self.figure.hold_sync():
+            meta = [self._meta(r) for _, r in ok]
             for cls, m in self.points.items():
-                sel = [(i, r) for i, r in ok if event_class(r, self._relu) == cls]
-                self._index[cls] = [i for i, _ in sel]
+                sel = [(i, xy[id(r)], name) for (i, r), (c, name) in zip(ok, meta) if c == cls]
+                self._index[cls] = [i for i, _, _ in sel]
                 with m.hold_sync():
-                    m.names = np.array([plan_q(self.network, r.plan).replace("\n", " | ") for _, r in sel], dtype=str)
-                    self.plot.set_xy(m, [self._x(r) for _, r in sel], [self._y(r) for _, r in sel])
-            self.plot.set_xy(self.front_line, [self._x(r) for r in front], [self._y(r) for r in front])
-            self.plot.set_xy(self.path_line, [self._x(r) for r in self.path], [self._y(r) for r in self.path])
-            if xs and not acc:
+                    m.names = np.array([name for _, _, name in sel], dtype=str)
+                    self.plot.set_xy(m, [p[0] for _, p, _ in sel], [p[1] for _, p, _ in sel])
+            self.plot.set_xy(self.front_line, [xy[id(r)][0] for r in front], [xy[id(r)][1] for r in front])
+            self.plot.set_xy(self.path_line, *path)
+            if xy and not acc:
+                xs = [p[0] for p in xy.values()]
+                b = 100.0 * float(self.budget_box.value)
                 self.plot.set_xy(self.budget_line, [min(xs), max(xs)], [b, b])
             else:
                 self.plot.set_xy(self.budget_line, [], [])
-            self.x_axis.label = self.cost_box.value
+            self.x_axis.label = key
             self.y_axis.label = _Y[self.y_box.value]
         self._mark_current()
+
+    def _meta(self, r: SweepRecord) -> tuple[str, str]:
+        """(event class, plan in Q notation on one line) of a record, computed once per record."""
+        got = self._metas.get(id(r))
+        if got is None or got[0] is not r:
+            got = (r, event_class(r, self._relu), plan_q(self.network, r.plan).replace("\n", " | "))
+            self._metas[id(r)] = got
+        return got[1], got[2]
 
     def _session_updated(self, _change: Any) -> None:
         self._shown_plan = self.explorer.session.result.plan
