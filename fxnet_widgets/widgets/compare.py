@@ -173,6 +173,8 @@ class ComparePanel(w.VBox):
 
     def __init__(self, explorer: Any, plan_a: Plan | None = None, plan_b: Plan | None = None) -> None:
         self.session = getattr(explorer, "session", explorer)
+        if self.session is not explorer:
+            explorer.pinned_comparison = self  # the report's comparison section reads it (report/_search.py)
         self.plan_a: Plan = self.session.plan if plan_a is None else plan_a
         self.plan_b: Plan | None = plan_b
         self.pin_button = w.Button(description="pin current plan as A")

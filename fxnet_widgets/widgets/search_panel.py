@@ -155,6 +155,7 @@ class SearchPanel(w.VBox):
         self.error = ""
         #: the index into :attr:`records` last picked (or None)
         self.picked: int | None = None
+        explorer.last_search = self  # the report's search section reads it (report/_search.py)
         self._shown_plan: Plan = session.result.plan
         session.observe(self._session_updated, names="version")
         self._mark_current()
