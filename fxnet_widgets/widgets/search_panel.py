@@ -36,7 +36,6 @@ from ..core.analysis import (
     tune,
 )
 from ..core.kernel import emulate
-from ..core.labels import LabelledPixels
 from ..core.plan import Plan
 from .search_grid import GridEditor, grid_size, sub_grid
 from .search_plot import TradeOffFigure, moves_html
@@ -48,6 +47,8 @@ from .search_run import (
     event_class,
     plan_q,
     rate_text,
+    record_html,
+    search_data,
     tune_path,
 )  # fmt: skip
 
@@ -102,7 +103,7 @@ class SearchPanel(w.VBox):
         session = explorer.session
         self.explorer = explorer
         self.network = session.network
-        self.codes, self.labels = self._data(session, codes, labels)
+        self.codes, self.labels = search_data(session, codes, labels)
         if cost not in COST_KEYS:
             raise ValueError(f"cost must be one of {', '.join(COST_KEYS)}, not {cost!r}")
         budget = 0.001 if budget is None else budget
@@ -129,6 +130,8 @@ class SearchPanel(w.VBox):
         self.rate = w.Label("")
         self.status = w.HTML("")
         self.hovered = w.HTML("")
+        self.picked_label = w.HTML("")
+        self.picked_label.add_class("fxnet-search-picked")
         self.moves = w.HTML("")
         self._build_figure()
         for box in (self.cost_box, self.y_box, self.budget_box):
@@ -136,7 +139,7 @@ class SearchPanel(w.VBox):
         controls = w.VBox([self.editor, w.HBox([self.budget_box, self.cost_box, self.y_box]),
                            w.HBox([self.sweep_button, self.tune_button, self.stop_button]),
                            w.HBox([self.progress, self.rate]), self.status])  # fmt: skip
-        super().__init__([controls, self.figure, self.hovered, self.moves])
+        super().__init__([controls, self.figure, self.hovered, self.picked_label, self.moves])
         self.add_class("fxnet-search")
         self._lock = threading.RLock()
         self._records: list[SweepRecord] = []
@@ -161,22 +164,6 @@ class SearchPanel(w.VBox):
         self._mark_current()
 
     # -- data ---------------------------------------------------------------------------
-    @staticmethod
-    def _data(session: Any, codes: Any, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
-        if isinstance(labels, LabelledPixels):
-            if codes is not None:
-                raise ValueError("codes must be None when labels is a LabelledPixels (it has its codes), not given")
-            return labels.codes, labels.labels
-        if codes is None:
-            if session.samples is not None:
-                codes, default = session.samples, session.labels
-            elif session.image is not None:
-                codes, default = session.image, session.image_labels
-            else:
-                raise ValueError("the search needs data: the explorer must have samples or an image, not neither")
-            labels = default if labels is None else labels
-        return np.asarray(codes), (None if labels is None else np.asarray(labels))
-
     # -- state ---------------------------------------------------------------------------
     @property
     def records(self) -> list[SweepRecord]:
@@ -352,6 +339,7 @@ class SearchPanel(w.VBox):
             raise ValueError(f"records[{int(i)}] must be an evaluated plan, not a refused one ({rec.error})")
         self.picked = int(i) % len(recs)
         self.explorer.plan = rec.plan
+        self.picked_label.value = "picked: " + self._describe(rec, self.picked)
         return rec.plan
 
     def _on_click(self, cls: str, content: dict[str, Any]) -> None:
@@ -367,12 +355,7 @@ class SearchPanel(w.VBox):
             self.hovered.value = self._describe(self.records[idx[k]], idx[k])
 
     def _describe(self, r: SweepRecord, i: int) -> str:
-        q = html.escape(plan_q(self.network, r.plan)).replace("\n", "<br>")
-        acc = "" if r.accuracy is None else f", accuracy {100 * r.accuracy:.2f} %"
-        return (f"<div style='font-size:11px;font-family:monospace'><b>records[{i}]</b> "
-                f"{html.escape(str(dict(r.settings)))}: {self.cost_box.value} {self._x(r):.0f}, "
-                f"{r.mismatch} differ ({100 * (r.mismatch_fraction or 0):.3f} %){acc}, {event_class(r, self._relu)}"
-                f"<br>{q}</div>")  # fmt: skip
+        return record_html(self.network, r, i, self.cost_box.value, self._x(r), event_class(r, self._relu))
 
     # -- drawing -------------------------------------------------------------------------
     def _build_figure(self) -> None:

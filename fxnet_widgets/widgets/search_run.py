@@ -9,12 +9,16 @@ Pure functions and one small executor wrapper; no widgets.
 from __future__ import annotations
 
 import concurrent.futures as cf
+import html
 import threading
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any
 
+import numpy as np
+
 from ..core.analysis import SweepRecord, TuneResult
 from ..core.formats import q_notation
+from ..core.labels import LabelledPixels
 from ..core.network import Network
 from ..core.plan import Plan
 
@@ -25,6 +29,8 @@ __all__ = [
     "event_class",
     "plan_q",
     "rate_text",
+    "record_html",
+    "search_data",
     "tune_path",
     "dominance_front",
 ]
@@ -68,6 +74,32 @@ def plan_q(network: Network, plan: Plan) -> str:
             parts.append(f"out {lp.out_bits} b")
         lines.append(f"L{i + 1}: " + ", ".join(parts))
     return "\n".join(lines)
+
+
+def search_data(session: Any, codes: Any, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
+    """The codes and labels a search runs on (see :class:`~fxnet_widgets.widgets.search_panel.SearchPanel`)."""
+    if isinstance(labels, LabelledPixels):
+        if codes is not None:
+            raise ValueError("codes must be None when labels is a LabelledPixels (it has its codes), not given")
+        return labels.codes, labels.labels
+    if codes is None:
+        if session.samples is not None:
+            codes, default = session.samples, session.labels
+        elif session.image is not None:
+            codes, default = session.image, session.image_labels
+        else:
+            raise ValueError("the search needs data: the explorer must have samples or an image, not neither")
+        labels = default if labels is None else labels
+    return np.asarray(codes), (None if labels is None else np.asarray(labels))
+
+
+def record_html(network: Network, r: SweepRecord, i: int, cost_key: str, x: float, cls: str) -> str:
+    """One record as a short HTML block: index, settings, cost, disagreement, accuracy, events, Q notation."""
+    q = html.escape(plan_q(network, r.plan)).replace("\n", "<br>")
+    acc = "" if r.accuracy is None else f", accuracy {100 * r.accuracy:.2f} %"
+    return (f"<div style='font-size:11px;font-family:monospace'><b>records[{i}]</b> "
+            f"{html.escape(str(dict(r.settings)))}: {cost_key} {x:.0f}, "
+            f"{r.mismatch} differ ({100 * (r.mismatch_fraction or 0):.3f} %){acc}, {cls}<br>{q}</div>")  # fmt: skip
 
 
 def rate_text(done: int, total: int | None, seconds: float) -> str:
