@@ -146,7 +146,7 @@ class GridEditor(w.VBox):
     Attributes
     ----------
     rows : list of the rows (``row.field``, ``row.values``, ``row.error`` widgets)
-    layer : Dropdown: "every layer" (None) or one layer index
+    layer : Dropdown: "every layer" (-1) or one layer index (see :attr:`layer_index`)
     keep_range, safe_acc : the ``sweep`` options of the same names
     """
 
@@ -155,7 +155,9 @@ class GridEditor(w.VBox):
         self.network = network
         self.rows: list[_GridRow] = []
         names = [(f"layer {i + 1} ({L.activation})", i) for i, L in enumerate(network.layers)]
-        self.layer = w.Dropdown(options=[("every layer", None), *names], value=layer, description="layer")
+        # -1 stands for "every layer" (a Dropdown shows no selection for a None value)
+        self.layer = w.Dropdown(options=[("every layer", -1), *names], value=-1 if layer is None else layer,
+                                description="layer")  # fmt: skip
         self.keep_range = w.Checkbox(value=True, description="keep range (move frac with width)", indent=False)
         self.safe_acc = w.Checkbox(value=True, description="safe accumulators", indent=False)
         self.add = w.Button(description="add field")
@@ -169,6 +171,12 @@ class GridEditor(w.VBox):
             grid = parse_grid(grid)
         for field, values in grid.items():
             self.add_row(field, [values] if isinstance(values, (int, str)) else list(values))
+
+    @property
+    def layer_index(self) -> int | None:
+        """The layer the grid changes (None: every layer), as ``sweep``'s ``layer``."""
+        v = self.layer.value
+        return None if v is None or v < 0 else int(v)
 
     def add_row(self, field: str, values: Sequence[Any]) -> None:
         self.rows.append(_GridRow(self, field, values))

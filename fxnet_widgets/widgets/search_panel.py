@@ -187,7 +187,7 @@ class SearchPanel(w.VBox):
     def run(self, wait: bool = False) -> None:
         """Sweep the editor's grid from the explorer's current plan (``wait``: here and now, else in the background)."""
         grid = self._checked_grid()
-        base, layer = self.explorer.plan, self.editor.layer.value
+        base, layer = self.explorer.plan, self.editor.layer_index
         options = {"base": base, "layer": layer, "labels": self.labels, "cost": self.cost_box.value,
                    "safe_acc": self.editor.safe_acc.value, "keep_range": self.editor.keep_range.value}  # fmt: skip
         self._start("sweep", lambda: self._sweep(grid, options), wait)

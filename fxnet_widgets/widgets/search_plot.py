@@ -50,7 +50,7 @@ class TradeOffFigure:
                                     labels=["budget"], display_legend=True)  # fmt: skip
         self.current = bq.Scatter(x=[], y=[], scales=sc, colors=["#111111"], marker="diamond", default_size=140,
                                   labels=["explorer's plan"], display_legend=True)  # fmt: skip
-        self.x_axis = bq.Axis(scale=self.xs, label=x_label)
+        self.x_axis = bq.Axis(scale=self.xs, label=x_label, num_ticks=4, tick_format="~s")
         self.y_axis = bq.Axis(scale=self.ys, side="left", label=y_label, tick_format=".3~f")
         marks = [self.budget_line, self.front_line, self.path_line, *self.points.values(), self.current]
         self.figure = bq.Figure(marks=marks, axes=[self.x_axis, self.y_axis], legend_location="top-right",

@@ -216,3 +216,12 @@ def test_bad_arguments(explorer):
     panel = SearchPanel(explorer, GRID)
     with pytest.raises(IndexError, match=r"^i must be an index into panel.records \(0 to -1\), not 0$"):
         panel.pick(0)
+
+
+def test_every_layer_grid(explorer):
+    panel = SearchPanel(explorer, {"weight_bits": [5, 7]}, layer=None)
+    assert panel.editor.layer.value == -1 and panel.editor.layer.label == "every layer"
+    assert panel.editor.layer_index is None
+    panel.run(wait=True)
+    assert panel.records == direct_sweep(explorer, {"weight_bits": [5, 7]}, layer=None)
+    assert all(lp.weight_bits == 5 for lp in panel.records[0].plan.layers)
