@@ -225,3 +225,24 @@ def test_every_layer_grid(explorer):
     panel.run(wait=True)
     assert panel.records == direct_sweep(explorer, {"weight_bits": [5, 7]}, layer=None)
     assert all(lp.weight_bits == 5 for lp in panel.records[0].plan.layers)
+
+
+def test_stopping_a_tune_keeps_its_records(explorer):
+    s = explorer.session
+    full = tune(s.network, s.samples, 0.05, labels=s.labels, executor=SerialExecutor())
+    panel = SearchPanel(explorer, budget=0.05)
+    rounds = []
+
+    def stop_after_two_rounds(change):
+        if change["new"] == 0:  # a round starts
+            rounds.append(1)
+            if len(rounds) == 3:
+                panel.stop()
+
+    panel.progress.observe(stop_after_two_rounds, names="value")
+    panel.tune(wait=True)
+    n = len(panel.records)
+    assert 0 < n < len(full.records)
+    assert panel.records == list(full.records[:n])  # the finished records, as the full tune evaluated them
+    assert panel.tune_result is None and panel.path == []
+    assert "tune stopped: " in panel.status.value and "(a stopped tune has no answer)" in panel.status.value
