@@ -152,8 +152,9 @@ def _rows_html(cmp: PlanComparison) -> str:
         if a is not None and b is not None and a != b:
             better = (b > a) if any(k in label for k in _HIGHER_BETTER) else (b < a)
             style = f"font-weight:bold;color:{'#2d6a2d' if better else '#b00020'}"
-        out.append(f"<tr><td style='padding-right:8px'>{html.escape(label)}</td><td>{_fmt(a)}</td><td>{_fmt(b)}</td>"
-                   f"<td style='{style}'>{_change(a, b)}</td></tr>")  # fmt: skip
+        pad = "padding:0 8px;text-align:right"
+        out.append(f"<tr><td style='padding-right:8px'>{html.escape(label)}</td><td style='{pad}'>{_fmt(a)}</td>"
+                   f"<td style='{pad}'>{_fmt(b)}</td><td style='{pad};{style}'>{_change(a, b)}</td></tr>")  # fmt: skip
     return ("<table class='fxnet-compare-table' style='font-size:11px;border-collapse:collapse'><thead><tr><th></th>"
             "<th>A</th><th>B</th><th>change</th></tr></thead><tbody>" + "".join(out) + "</tbody></table>")  # fmt: skip
 

@@ -50,7 +50,9 @@ def confusion_html(m: ErrorMetrics) -> str:
         for j, v in enumerate(row):
             alpha = v / total
             rgb = "45,106,45" if i == j else "214,45,45"
-            cells.append(f"<td style='{_CELL};text-align:right;background:rgba({rgb},{alpha:.2f})'>{v}</td>")
+            ink = "white" if alpha > 0.5 else "black"
+            shade = f"color:{ink};background:rgba({rgb},{alpha:.2f})"
+            cells.append(f"<td style='{_CELL};text-align:right;{shade}'>{v}</td>")
         rows.append(f"<tr><th style='{_CELL};text-align:left'>{html.escape(m.classes[i])}</th>{''.join(cells)}</tr>")
     return (f"<table class='fxnet-confusion' style='border-collapse:collapse;margin:2px 0'><thead><tr>"
             f"<th style='{_CELL}'>label \\ fixed</th>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>")
@@ -72,13 +74,14 @@ def cost_bar_html(cost: HardwareCost) -> str:
     segs, keys = [], []
     for label, attr, colour in COST_PARTS:
         v = int(getattr(cost, attr))
-        segs.append(f"<span title='{label} {v}' style='display:inline-block;height:12px;width:{100 * v / total:.2f}%;"
+        segs.append(f"<span title='{label} {v}' style='display:block;height:12px;width:{100 * v / total:.2f}%;"
                     f"background:{colour}'></span>")  # fmt: skip
         keys.append(f"<span style='color:{colour}'>&#9632;</span> {label} {v}")
     extra = f"adders {cost.adders}, multipliers {cost.multipliers}, table blocks {cost.table_blocks}, " \
             f"latency {cost.latency} cycles"  # fmt: skip
     return (f"<div style='{_CELL}'><b>cost</b> total_bits {cost.total_bits}<div style='width:300px;"
-            f"background:#e6e6e6;font-size:0'>{''.join(segs)}</div>{' &nbsp; '.join(keys)}<br>{extra}</div>")
+            f"height:12px;display:flex;background:#e6e6e6'>{''.join(segs)}</div>{' &nbsp; '.join(keys)}"
+            f"<br>{extra}</div>")
 
 
 class MetricsGlancePanel(w.HTML):
