@@ -129,6 +129,11 @@ def sweep_and_pick(page: Any, ex: Any, panel: str, shot: Path) -> None:
     page.wait_for_function("(sel) => document.querySelectorAll(sel).length >= 3", arg=f"{panel} .bqplot path.dot",
                            timeout=30_000)  # two records and the explorer's plan  # fmt: skip
     page.screenshot(path=str(shot), full_page=True)
+    # hovering a point shows its plan in Q notation (bqplot's tooltip of the point's name)
+    dots.first.hover(force=True)
+    page.wait_for_function("() => [...document.querySelectorAll('.bqplot_tooltip_div')].some(e => "
+                           "/L1: weights U?Q-?\\d+\\.-?\\d+ \\(\\d+ b\\)/.test(e.innerText))",
+                           timeout=30_000)  # fmt: skip
     # click the first record point (the explorer's plan, a diamond, is drawn last)
     dots.first.click(force=True)
     picked = page.locator(".fxnet-search-picked").first
