@@ -246,3 +246,21 @@ def test_stopping_a_tune_keeps_its_records(explorer):
     assert panel.records == list(full.records[:n])  # the finished records, as the full tune evaluated them
     assert panel.tune_result is None and panel.path == []
     assert "tune stopped: " in panel.status.value and "(a stopped tune has no answer)" in panel.status.value
+
+
+def test_sliders_move_while_a_background_sweep_runs(explorer):
+    """The notebook stays usable: the explorer computes in this thread while the sweep runs in its own."""
+    base = explorer.plan
+    panel = SearchPanel(explorer, GRID, chunk_seconds=0.0)
+    panel.run()
+    k = 0
+    while True:  # at least one change, more while the run lasts
+        explorer.controls.sliders["acc_bits"].value = 12 + k % 6
+        k += 1
+        if not panel.running:
+            break
+    assert panel.join(60) and panel.error == "" and explorer.session.error == ""
+    s = explorer.session
+    want = sweep(s.network, s.samples, GRID, base=base, layer=0, labels=s.labels, executor=SerialExecutor())
+    assert panel.records == want
+    assert_explorer_matches_kernel(explorer)
