@@ -140,6 +140,15 @@ class Explorer(w.VBox):
     def plan(self, plan: Plan) -> None:
         self.session.plan = plan
 
+    def compare(self, plan_b: Plan | None = None, plan_a: Plan | None = None) -> Any:
+        """Plan A (default: the current plan) against ``plan_b`` (default: B follows the current plan).
+
+        Returns a :class:`~fxnet_widgets.widgets.compare.ComparePanel` (display it; ``.text`` reads it).
+        """
+        from .compare import ComparePanel
+
+        return ComparePanel(self, plan_a=plan_a, plan_b=plan_b)
+
     def summary(self) -> str:
         """Deterministic text of what the views show (for notebooks and reports)."""
         return self.session.summary() + "\nstatus: " + self.status.text
