@@ -49,7 +49,8 @@ from typing import Any
 import numpy as np
 
 from .formats import bits_for_range, q_notation, round_float, shift_round, signed_range, unsigned_range
-from .network import Network, activate, as_codes
+from .kernel_tables import TableSpec, build_table, table_inputs
+from .network import Network, as_codes
 from .plan import LayerPlan, Plan
 
 __all__ = [
@@ -229,30 +230,6 @@ class IntegerNetwork:
         }
 
 
-def table_inputs(n_entries: int, index_min: int, table_frac: int, k: int, index_round: str, sample: str) -> np.ndarray:
-    """The real input ``t`` of every table entry, in address order (float64).
-
-    ``edge``: ``t = a / 2**Ft``. ``mid``: the midpoint of the smallest and
-    largest integer ``s_A`` that map to ``a`` (over all integers), over
-    ``2**(Fi+Fw)``; equal to ``edge`` when ``k <= 0``.
-    """
-    a = np.arange(index_min, index_min + n_entries, dtype=np.float64)
-    if sample == "edge" or k <= 0:
-        return np.ldexp(a, -table_frac)
-    h = 2.0 ** -(k + 1)  # half an s LSB, in index units
-    if index_round == "floor":
-        d = np.full_like(a, 0.5 - h)
-    elif index_round == "trunc":
-        d = np.sign(a) * (0.5 - h)
-    elif index_round == "half-up":
-        d = np.full_like(a, -h)
-    elif index_round == "half-away":
-        d = -np.sign(a) * h
-    else:  # half-even: symmetric sets, midpoint exactly a * 2**k
-        d = np.zeros_like(a)
-    return np.ldexp(a + d, -table_frac)
-
-
 def _code_range(activation: str, bits: int) -> tuple[int, int, bool]:
     if activation in ("sigmoid", "relu"):
         lo, hi = unsigned_range(bits)
@@ -344,11 +321,8 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
             assert lp.table_bits is not None and lp.table_frac is not None
             k = acc_frac - lp.table_frac
             ilo, ihi = signed_range(lp.table_bits)
-            t = table_inputs(1 << lp.table_bits, ilo, lp.table_frac, k, lp.index_round, lp.table_sample)
-            v = activate(t, L.activation)
-            entries = round_float(_scaled(v, out_frac), lp.table_round)
-            table = np.clip(entries, out_lo, out_hi).astype(np.int64)
-            table.setflags(write=False)
+            table = build_table(TableSpec(L.activation, lp.table_bits, lp.table_frac, k, lp.index_round,
+                                          lp.table_sample, out_frac, lp.table_round, out_lo, out_hi))  # fmt: skip
             code_min, code_max = int(table.min()), int(table.max())
         else:
             k = acc_frac - out_frac
