@@ -157,7 +157,7 @@ def main() -> None:
 
     def alternate():
         fresh[0] ^= 1
-        kernel._LAYER_CACHE.clear()
+        kernel.caches.LAYER_CACHE.clear()
         kernel.quantise(net, plans[fresh[0]])
 
     fw.emulate(net, plan, img)

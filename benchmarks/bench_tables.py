@@ -21,9 +21,10 @@ from pathlib import Path
 import numpy as np
 
 import fxnet_widgets as fw
-from fxnet_widgets.core import kernel, kernel_tables
+from fxnet_widgets.core import kernel
 from fxnet_widgets.core.formats import round_float
-from fxnet_widgets.core.kernel_tables import TableSpec, build_table, float_activation, table_inputs
+from fxnet_widgets.core.kernel import tables as kernel_tables
+from fxnet_widgets.core.kernel.tables import TableSpec, build_table, float_activation, table_inputs
 
 ROOT = Path(__file__).resolve().parents[1]
 

@@ -12,8 +12,9 @@ import numpy as np
 import pytest
 
 import fxnet_widgets as fw
-from fxnet_widgets.core import kernel, kernel_tables
+from fxnet_widgets.core import kernel
 from fxnet_widgets.core.formats import ROUNDINGS
+from fxnet_widgets.core.kernel import tables as kernel_tables
 
 pytest.importorskip("mpmath")
 

@@ -35,7 +35,7 @@ from typing import Final
 
 import numpy as np
 
-from .formats import check_rounding, round_float, signed_range
+from ..formats import check_rounding, round_float, signed_range
 
 __all__ = ["GUARD", "TableSpec", "TableStats", "build_table", "exact_entry", "table_inputs", "table_t"]
 
