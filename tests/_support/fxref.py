@@ -85,6 +85,10 @@ def table_entry(a: str, t: Fraction, fo: int, mode: str) -> int:
         else:
             c = 2 / (1 + mpmath.exp(2 * x))  # 1 - tanh(x)
             base, s = sgn, -sgn
+        if x > 4096:
+            # c < 2 e^-4096 < 2^-5900: below 2^-42, every c rounds alike, since |fo| <= 40 puts
+            # B * 2^fo on a multiple of 2^-40 and every boundary on a multiple of 1/2
+            c = mpmath.mpf(2) ** -200
         man, ex = c.man_exp  # c = man * 2**ex exactly (mpmath docs, "mpf.man_exp")
     man, ex = int(man), int(ex)
     e = max(0, -fo, 150 - ex - fo)
