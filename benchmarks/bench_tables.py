@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import argparse
 import statistics
-import time
+import timeit
 from pathlib import Path
 
 import numpy as np
@@ -50,12 +50,7 @@ def demo_specs() -> list[TableSpec]:
 
 
 def median_time(fn, repeat: int) -> float:
-    times = []
-    for _ in range(repeat):
-        t0 = time.perf_counter()
-        fn()
-        times.append(time.perf_counter() - t0)
-    return statistics.median(times)
+    return statistics.median(timeit.repeat(fn, number=1, repeat=repeat))
 
 
 def main() -> None:
