@@ -178,3 +178,21 @@ def test_table_builder_rejects_other_activations():
     spec = kernel_tables.TableSpec("relu", 4, 0, 0, "floor", "edge", 4, "floor", 0, 15)
     with pytest.raises(ValueError, match=r"^table activation must be sigmoid or tanh, not 'relu'$"):
         kernel_tables.build_table(spec)
+
+
+def test_exported_rom_images_equal_the_exact_reference(tmp_path):
+    # the hand-off files carry the same tables: the failing case (tanh, 9-bit output with
+    # 7 fraction bits, floor) and a saturated sigmoid, read back from the $readmemh images
+    from fxnet_widgets.core.export import export, read_export
+
+    net = fw.Network.from_layers([([[1.0], [-2.0]], [0.0, 0.5], "tanh"), ([[1.5, -1.0]], [0.0], "sigmoid")])
+    plan = fw.Plan((
+        fw.LayerPlan(weight_bits=8, weight_frac=4, acc_bits=20, table_bits=9, table_frac=2, out_bits=9, out_frac=7,
+                     table_round="floor"),
+        fw.LayerPlan(weight_bits=8, weight_frac=4, acc_bits=24, table_bits=8, table_frac=0, out_bits=8, out_frac=7,
+                     table_round="trunc", table_sample="mid"),
+    ))  # fmt: skip
+    export(net, plan, tmp_path / "out")
+    back = read_export(tmp_path / "out")
+    for got, L in zip(back.layers, kernel.quantise(net, plan).layers):
+        assert np.asarray(got.table).tolist() == _reference(L)
