@@ -166,9 +166,12 @@ def test_one_ulp_of_float64_changes_no_table(monkeypatch, direction):
 def test_guard_reevaluates_few_entries():
     # the demo-sized table: 16384 entries, most decided by float64; the saturated tails are filled
     # by monotonicity from a handful of exact evaluations
-    kernel.clear_caches()
     L = _layer("sigmoid", table_bits=14, table_frac=9, out_bits=8, table_round="floor")
-    stats = kernel_tables.LAST_STATS
+    p = L.plan
+    spec = kernel_tables.TableSpec("sigmoid", 14, 9, L.shift, p.index_round, p.table_sample, L.out_frac,
+                                   p.table_round, L.out_min, L.out_max)  # fmt: skip
+    table, stats = kernel_tables.build_table_counted(spec)
+    assert table.tolist() == L.table.tolist()  # the kernel's table is this builder's
     assert L.table.size == stats.entries == 16384
     assert 0 < stats.exact <= 64
     assert stats.guarded < stats.entries

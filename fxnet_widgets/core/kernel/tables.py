@@ -37,7 +37,8 @@ import numpy as np
 
 from ..formats import check_rounding, round_float, signed_range
 
-__all__ = ["GUARD", "TableSpec", "TableStats", "build_table", "exact_entry", "table_inputs", "table_t"]
+__all__ = ["GUARD", "TableSpec", "TableStats", "build_table", "build_table_counted", "exact_entry", "table_inputs",
+           "table_t"]  # fmt: skip
 
 #: relative distance to a rounding boundary below which float64 is not trusted (contract step 6)
 GUARD: Final = 2.0**-30
@@ -71,15 +72,11 @@ class TableSpec:
 
 @dataclass
 class TableStats:
-    """What the last :func:`build_table` call did (for benchmarks and tests)."""
+    """What one table build did (:func:`build_table_counted`; for benchmarks and tests)."""
 
     entries: int = 0
     guarded: int = 0  # entries the float64 evaluation could not decide
     exact: int = 0  # decimal evaluations actually made (runs are filled by monotonicity)
-
-
-#: the counts of the most recent build (module-level, read by the benchmark)
-LAST_STATS = TableStats()
 
 
 def table_t(spec: TableSpec, a: int) -> Fraction:
@@ -219,6 +216,11 @@ def _guarded(y: np.ndarray, v: np.ndarray, t: np.ndarray, mode: str) -> np.ndarr
 
 def build_table(spec: TableSpec) -> np.ndarray:
     """The table of ``spec`` in address order (read-only int64), per contract step 6."""
+    return build_table_counted(spec)[0]
+
+
+def build_table_counted(spec: TableSpec) -> tuple[np.ndarray, TableStats]:
+    """:func:`build_table`, and how many entries the guard decided and evaluated exactly."""
     if spec.activation not in ("sigmoid", "tanh"):
         raise ValueError(f"table activation must be sigmoid or tanh, not {spec.activation!r}")
     check_rounding(spec.table_round, "table_round")
@@ -241,8 +243,10 @@ def build_table(spec: TableSpec) -> np.ndarray:
             return exact[i]
 
         # runs of guarded addresses: [starts[r], ends[r]] inclusive
-        edges = np.diff(np.concatenate(([0], guard.view(np.int8), [0])))
-        starts, ends = np.flatnonzero(edges == 1), np.flatnonzero(edges == -1) - 1
+        where = np.flatnonzero(guard)
+        cut = np.flatnonzero(np.diff(where) != 1)
+        starts = np.concatenate((where[:1], where[cut + 1]))
+        ends = np.concatenate((where[cut], where[-1:]))
         for i0, i1 in zip(starts.tolist(), ends.tolist()):
             stack = [(i0, i1)]
             while stack:  # entries are monotone in the address: equal ends fill the run
@@ -255,7 +259,6 @@ def build_table(spec: TableSpec) -> np.ndarray:
                 else:
                     m = (i + j) // 2
                     stack += [(i, m), (m, j)]
-    LAST_STATS.__dict__.update(stats.__dict__)
     table = np.clip(entries, spec.out_min, spec.out_max).astype(np.int64)
     table.setflags(write=False)
-    return table
+    return table, stats
