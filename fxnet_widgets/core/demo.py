@@ -151,7 +151,7 @@ def suggest_plan(
     """
     layers = []
     for L in network.layers:
-        if L.activation not in ("sigmoid", "tanh"):
+        if not L.has_table:
             raise ValueError(f"suggest_plan needs sigmoid or tanh layers, not {L.activation!r}")
         frac = _largest_frac(L.weights, weight_bits)
         layers.append(

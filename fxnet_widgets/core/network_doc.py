@@ -13,9 +13,11 @@ import numpy as np
 
 from .fileio import key_text
 
-__all__ = ["ACTIVATIONS", "MAX_FAN_IN", "SCALES", "Layer", "check_layer", "validated"]
+__all__ = ["ACTIVATIONS", "TABLE_ACTIVATIONS", "MAX_FAN_IN", "SCALES", "Layer", "check_layer", "validated"]
 
 ACTIVATIONS = ("sigmoid", "tanh", "relu", "identity")
+#: the activations hardware computes with a look-up table (contract step 6; relu/identity use step 7)
+TABLE_ACTIVATIONS = ("sigmoid", "tanh")
 SCALES = ("pow2", "full")
 MAX_FAN_IN = 4096
 _NETWORK_KEYS = {"kind", "version", "input", "layers", "output"}
@@ -148,6 +150,11 @@ class Layer:
 
     def __hash__(self) -> int:
         return hash((self.activation, self.weights.shape, self.weights.tobytes(), self.bias.tobytes()))
+
+    @property
+    def has_table(self) -> bool:
+        """True for sigmoid and tanh: the layer's activation is a look-up table (contract step 6)."""
+        return self.activation in TABLE_ACTIVATIONS
 
     @property
     def n_in(self) -> int:

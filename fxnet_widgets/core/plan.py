@@ -236,7 +236,7 @@ class Plan:
                 f"layers must have {len(network.layers)} entries (one per network layer), not {len(self.layers)}"
             )
         for i, (lp, L) in enumerate(zip(self.layers, network.layers)):
-            if L.activation in ("sigmoid", "tanh"):
+            if L.has_table:
                 for key in ("table_bits", "table_frac"):
                     if getattr(lp, key) is None:
                         raise ValueError(f"layers[{i}].{key} is missing (required for a {L.activation} layer)")

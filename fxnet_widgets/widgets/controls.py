@@ -129,12 +129,12 @@ class PlanControlsPanel(w.VBox):
         net = self.session.network
         idx = self.targets()
         if field in _TABLE_FIELDS:
-            with_table = [i for i in idx if net.layers[i].activation in ("sigmoid", "tanh")]
+            with_table = [i for i in idx if net.layers[i].has_table]
             return with_table[0] if with_table else idx[0]
         return idx[0]
 
     def _has(self, li: int, field: str) -> bool:
-        return field not in _TABLE_FIELDS or self.session.network.layers[li].activation in ("sigmoid", "tanh")
+        return field not in _TABLE_FIELDS or self.session.network.layers[li].has_table
 
     # -- controls -> plan --------------------------------------------------------------
     def set_field(self, field: str, value: Any) -> None:

@@ -4,8 +4,9 @@ Written from the contract's text with Python ints and ``fractions.Fraction``
 (exact rationals, Python standard library) and no code of the package's kernel:
 every rounding is done on exact rationals, every shift on Python ints (whose
 ``>>`` is floor division by 2**k: Python docs, "Bitwise operations on integer
-types"). The activation itself is evaluated with numpy in float64, as the
-contract says table entries are.
+types"). Table entries are rounded from the exact value (contract step 6), here with
+mpmath at 50 digits (mpmath docs: arbitrary-precision ``mpf`` with an unbounded
+exponent), written without any code of the package's table builder.
 """
 
 from __future__ import annotations
@@ -13,6 +14,7 @@ from __future__ import annotations
 import math
 from fractions import Fraction
 
+import mpmath
 import numpy as np
 
 
@@ -37,6 +39,21 @@ def rnd(x: Fraction, mode: str) -> int:
     raise ValueError(mode)
 
 
+def rnd_dyadic(n: int, e: int, mode: str) -> int:
+    """Round n / 2**e (e >= 0) to an integer, with Python ints only (same modes as rnd)."""
+    if e == 0:
+        return n
+    fl = n >> e  # floor division by 2**e (Python docs, "Bitwise operations on integer types")
+    rest, half = n - (fl << e), 1 << (e - 1)
+    if mode == "floor":
+        return fl
+    if mode == "trunc":
+        return fl + (1 if n < 0 and rest else 0)
+    if rest != half:
+        return fl + (1 if rest > half else 0)
+    return {"half-up": fl + 1, "half-away": fl + (1 if n > 0 else 0), "half-even": fl + (fl & 1)}[mode]
+
+
 def clamp(v: int, lo: int, hi: int) -> int:
     return lo if v < lo else hi if v > hi else v
 
@@ -45,27 +62,63 @@ def srange(w: int) -> tuple[int, int]:
     return -(1 << (w - 1)), (1 << (w - 1)) - 1
 
 
-def act(x: float, a: str) -> float:
-    v = np.float64(x)
-    if a == "sigmoid":
-        return float(1.0 / (1.0 + np.exp(-v))) if v >= 0 else float(np.exp(v) / (1.0 + np.exp(v)))
-    if a == "tanh":
-        return float(np.tanh(v))
-    if a == "relu":
-        return float(max(v, 0.0))
-    return float(v)
+def table_entry(a: str, t: Fraction, fo: int, mode: str) -> int:
+    """R(f(t) * 2**fo) of the exact value (unclamped), f = sigmoid or tanh.
+
+    t = 0 is exact (e^0 = 1: sigmoid 1/2, tanh 0). Otherwise f(t) = B + S * c, with B an
+    exact integer and c > 0 computed at 50 digits without cancellation (c = 1/(1 + e^|t|)
+    for sigmoid, 2/(1 + e^2|t|) for tanh, or tanh itself near 0); the true value lies within
+    c * 2^-150 (about 10^-45) of the computed one, and the entry is returned when both ends
+    of that interval round alike (as exact dyadic rationals N / 2^E, with Python ints).
+    """
+    if t == 0:
+        return rnd(Fraction(2) ** fo / 2 if a == "sigmoid" else Fraction(0), mode)
+    sgn = 1 if t > 0 else -1
+    with mpmath.workdps(50):
+        x = abs(mpmath.mpf(t.numerator) / t.denominator)
+        if a == "sigmoid":
+            c = 1 / (1 + mpmath.exp(x))  # 1 - sigmoid(x) = sigmoid(-x)
+            base, s = (1, -1) if sgn > 0 else (0, 1)
+        elif x < 1:
+            c = mpmath.tanh(x)
+            base, s = 0, sgn
+        else:
+            c = 2 / (1 + mpmath.exp(2 * x))  # 1 - tanh(x)
+            base, s = sgn, -sgn
+        if x > 4096:
+            # c < 2 e^-4096 < 2^-5900: below 2^-42, every c rounds alike, since |fo| <= 40 puts
+            # B * 2^fo on a multiple of 2^-40 and every boundary on a multiple of 1/2
+            c = mpmath.mpf(2) ** -200
+        man, ex = c.man_exp  # c = man * 2**ex exactly (mpmath docs, "mpf.man_exp")
+    man, ex = int(man), int(ex)
+    e = max(0, -fo, 150 - ex - fo)
+    nb = base << (fo + e)
+    ends = [rnd_dyadic(nb + s * ((man * ((1 << 150) + d)) << (ex + fo - 150 + e)), e, mode) for d in (-1, 1)]
+    assert ends[0] == ends[1], f"reference cannot decide the entry at t = {t}"
+    return ends[0]
 
 
 def mid_t(a: int, k: int, mode: str, ft: int) -> Fraction:
-    """Midpoint of all integers s with R(s / 2**k) == a, over 2**(k + ft)."""
-    # search a window around a * 2**k for the set (exact, by brute force)
+    """Midpoint of all integers s with R(s / 2**k) == a, over 2**(k + ft).
+
+    R(s / 2**k) grows with s, so the smallest and largest such s are found by bisection
+    (exact, with Python ints) in the window a * 2**k +- (2**k + 1).
+    """
     step = 1 << k
-    lo = a * step - step
-    hi = a * step + step
-    members = [s for s in range(lo, hi + 1) if rnd(Fraction(s, step), mode) == a]
-    return Fraction(members[0] + members[-1], 2) / (1 << (k + ft)) if k + ft >= 0 else Fraction(
-        members[0] + members[-1], 2
-    ) * (1 << -(k + ft))
+
+    def first(pred, lo: int, hi: int) -> int:  # smallest s in [lo, hi] with pred(s), pred monotone
+        while lo < hi:
+            m = (lo + hi) // 2
+            if pred(m):
+                hi = m
+            else:
+                lo = m + 1
+        return lo
+
+    lo, hi = a * step - step - 1, a * step + step + 1
+    s0 = first(lambda s: rnd_dyadic(s, k, mode) >= a, lo, hi)
+    s1 = first(lambda s: rnd_dyadic(s, k, mode) > a, lo, hi) - 1
+    return Fraction(s0 + s1, 2) / Fraction(2) ** (k + ft)
 
 
 def run(doc_net: dict, doc_plan: dict, codes: list[list[int]]) -> dict:
@@ -148,8 +201,7 @@ def run(doc_net: dict, doc_plan: dict, codes: list[list[int]]) -> dict:
                             t = mid_t(idx, k, ir, ft)
                         else:
                             t = Fraction(idx) / Fraction(2) ** ft
-                        v = act(float(t), a_name)
-                        entry_cache[idx] = clamp(rnd(Fraction(v) * Fraction(2) ** fo, tr), olo, ohi)
+                        entry_cache[idx] = clamp(table_entry(a_name, t, fo, tr), olo, ohi)
                     code = entry_cache[idx]
                 arow.append(s_a)
                 orow.append(code)

@@ -1,0 +1,155 @@
+"""Steps 1-7 of the contract: the float network and a plan become the integer network.
+
+:func:`quantise` rounds and clamps the weights and biases, proves the exact sums fit
+int64, computes every neuron's guaranteed-safe accumulator width, the shift of the
+table index (or output) and the activation tables (one builder: :mod:`.tables`).
+Cached by value.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..formats import bits_for_range, round_float, signed_range, unsigned_range
+from ..network import Network
+from ..plan import Plan
+from .caches import QUANT_CACHE
+from .layers import Bounds, CodeFormat, IntegerLayer, IntegerNetwork
+from .tables import TableSpec, build_table
+
+__all__ = ["quantise"]
+
+_INT64_MAX = (1 << 63) - 1
+
+
+def _code_range(activation: str, bits: int) -> tuple[int, int, bool]:
+    if activation in ("sigmoid", "relu"):
+        lo, hi = unsigned_range(bits)
+        return lo, hi, False
+    lo, hi = signed_range(bits)
+    return lo, hi, True
+
+
+def _interval(q_w: np.ndarray, u_min: int, u_max: int, bias: list[int]) -> tuple[list[int], list[int]]:
+    lo_list, hi_list = [], []
+    for j in range(q_w.shape[0]):
+        lo = hi = int(bias[j])
+        for q in q_w[j].tolist():
+            a, b = q * u_min, q * u_max
+            lo += min(a, b)
+            hi += max(a, b)
+        lo_list.append(lo)
+        hi_list.append(hi)
+    return lo_list, hi_list
+
+
+def _scaled(x: np.ndarray, e: int) -> np.ndarray:
+    """``x * 2**e`` in float64 for rounding to an integer.
+
+    A product too small for float64 would underflow to zero and lose its sign
+    (``floor`` of a tiny negative value is -1, not 0); it is kept as the smallest
+    subnormal of its sign instead, which every rounding mode treats exactly like
+    the true value (any magnitude below 1/2 rounds by its sign alone).
+    """
+    with np.errstate(over="ignore", under="ignore"):
+        y = np.ldexp(x, e)
+    tiny = (y == 0) & (x != 0)
+    if tiny.any():
+        y = np.where(tiny, np.copysign(np.float64(5e-324), x), y)
+    return y
+
+
+def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
+    plan.check(network)
+    notes = []
+    layers: list[IntegerLayer] = []
+    in_frac = network.input_bits
+    u_min, u_max = 0, (1 << network.input_bits) - 1
+    for li, (L, lp) in enumerate(zip(network.layers, plan.layers)):
+        where = f"layers[{li}]"
+        w = np.asarray(L.weights, dtype=np.float64)
+        if li == 0 and network.input_scale == "full":
+            n = 1 << network.input_bits
+            w = w * (n / (n - 1))
+            notes.append(
+                f"input scale 'full': layer-1 weights multiplied by 2^{network.input_bits}/(2^{network.input_bits}-1)"
+                " before quantising"
+            )
+        # 1. weights
+        with np.errstate(invalid="ignore"):  # inf (an overflow) rounds to inf and is clamped: weight_clip
+            qw_f = round_float(_scaled(w, lp.weight_frac), lp.weight_round)
+        wlo, whi = signed_range(lp.weight_bits)
+        clipped = (qw_f < wlo) | (qw_f > whi)
+        q_w = np.clip(qw_f, wlo, whi).astype(np.int64)
+        weight_clip = clipped.sum(axis=1).astype(np.int64)
+        # 2. bias (aligned to the product's scale)
+        acc_frac = in_frac + lp.weight_frac
+        with np.errstate(invalid="ignore"):
+            qb_f = round_float(_scaled(np.asarray(L.bias, dtype=np.float64), acc_frac), lp.weight_round)
+        # beyond float64 the product is an exact integer (b is then an integer and acc_frac > 0)
+        q_b_raw = [int(v) if math.isfinite(v) else int(b) << acc_frac for v, b in zip(qb_f.tolist(), L.bias.tolist())]
+        alo, ahi = signed_range(lp.acc_bits)
+        q_b_list = [min(max(v, alo), ahi) for v in q_b_raw]
+        bias_clip = np.array([int(v != c) for v, c in zip(q_b_raw, q_b_list)], dtype=np.int64)
+        q_b = np.array(q_b_list, dtype=np.int64)
+        # 3. int64-safety proof and the guaranteed-safe width
+        sum_min, sum_max = _interval(q_w, u_min, u_max, q_b_list)
+        worst = max(max(abs(v) for v in sum_min), max(abs(v) for v in sum_max))
+        if worst > _INT64_MAX:
+            raise ValueError(
+                f"{where}: the exact sum can reach {worst}, which does not fit in int64; "
+                "use fewer weight bits or a smaller input range"
+            )
+        # the safe width holds the sum interval and the raw bias itself (semantics.md, "Guaranteed-safe
+        # accumulator width"), so at that width neither an overflow nor a bias clamp can happen
+        s_lo, s_hi = _interval(q_w, u_min, u_max, q_b_raw)
+        safe_min = [min(a, b) for a, b in zip(s_lo, q_b_raw)]
+        safe_max = [max(a, b) for a, b in zip(s_hi, q_b_raw)]
+        safe_bits = np.array([bits_for_range(a, b) for a, b in zip(safe_min, safe_max)], dtype=np.int64)
+        # 5.-7. index, table, output
+        out_lo, out_hi, out_signed = _code_range(L.activation, lp.out_bits)
+        out_frac = lp.resolved_out_frac(L.activation)
+        if L.has_table:
+            assert lp.table_bits is not None and lp.table_frac is not None
+            k = acc_frac - lp.table_frac
+            address_frac = lp.table_frac
+            ilo, ihi = signed_range(lp.table_bits)
+            table = build_table(TableSpec(L.activation, lp.table_bits, lp.table_frac, k, lp.index_round,
+                                          lp.table_sample, out_frac, lp.table_round, out_lo, out_hi))  # fmt: skip
+            code_min, code_max = int(table.min()), int(table.max())
+        else:
+            k = acc_frac - out_frac
+            address_frac = out_frac
+            ilo, ihi = out_lo, out_hi
+            table = None
+            code_min, code_max = out_lo, out_hi
+        for arr in (q_w, q_b, weight_clip, bias_clip, safe_bits):
+            arr.setflags(write=False)
+        layers.append(
+            IntegerLayer(
+                index=li, activation=L.activation, plan=lp, q_w=q_w, q_b=q_b, q_b_raw=tuple(q_b_raw),
+                weight_clip=weight_clip, bias_clip=bias_clip, inputs=CodeFormat(in_frac, u_min, u_max),
+                sums=Bounds(tuple(sum_min), tuple(sum_max)), safe=Bounds(tuple(safe_min), tuple(safe_max)),
+                safe_acc_bits=safe_bits, shift=k, address=CodeFormat(address_frac, ilo, ihi), table=table,
+                output=CodeFormat(out_frac, out_lo, out_hi, out_signed),
+                reachable=CodeFormat(out_frac, code_min, code_max, out_signed),
+            )
+        )  # fmt: skip
+        in_frac = out_frac
+        u_min, u_max = code_min, code_max
+    last = layers[-1]
+    thr = None
+    if last.n_out == 1:
+        thr = math.ceil(network.threshold * 2.0**last.out_frac)
+    return IntegerNetwork(network, plan, tuple(layers), network.input_bits, thr, tuple(notes))
+
+
+def quantise(network: Network, plan: Plan) -> IntegerNetwork:
+    """The integer network of ``(network, plan)`` (cached by value)."""
+    if not isinstance(network, Network):
+        raise TypeError(f"network must be a Network, not {type(network).__name__}")
+    if not isinstance(plan, Plan):
+        raise TypeError(f"plan must be a Plan, not {type(plan).__name__}")
+    return QUANT_CACHE.get((network.digest, plan), lambda: _quantise_uncached(network, plan))

@@ -1,0 +1,73 @@
+"""The kernel's value-keyed caches: small LRUs, emptied together by :func:`clear_caches`.
+
+Keys are values (network digests, plans, hashes of input codes), never object
+identities, so two different values can never share an answer.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Hashable
+from typing import Any
+
+__all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE",
+           "clear_caches", "cache_stats"]  # fmt: skip
+
+
+class LRU:
+    """A thread-safe least-recently-used map from a value key to a computed value."""
+
+    def __init__(self, size: int) -> None:
+        self.size = size
+        self.data: OrderedDict[Hashable, Any] = OrderedDict()
+        self.lock = threading.Lock()
+        self.hits = 0
+        self.misses = 0
+
+    def get(self, key: Hashable, make: Callable[[], Any]) -> Any:
+        """The value of ``key``, made with ``make()`` (outside the lock) on a miss."""
+        with self.lock:
+            if key in self.data:
+                self.data.move_to_end(key)
+                self.hits += 1
+                return self.data[key]
+        value = make()
+        with self.lock:
+            self.misses += 1
+            self.data[key] = value
+            while len(self.data) > self.size:
+                self.data.popitem(last=False)
+        return value
+
+    def clear(self) -> None:
+        with self.lock:
+            self.data.clear()
+            self.hits = self.misses = 0
+
+
+#: integer networks by (network digest, plan)
+QUANT_CACHE = LRU(64)
+#: per-image decompositions by a hash of the codes
+INPUT_CACHE = LRU(4)
+#: layer outputs by (network digest, input key, plan prefix)
+LAYER_CACHE = LRU(12)
+#: float references by (network digest, input key)
+FLOAT_CACHE = LRU(4)
+#: first-layer exact sums by the integer weights' values: a change of the accumulator,
+#: table or output fields keeps them (the product gathers are skipped)
+SUM_CACHE = LRU(4)
+
+_NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
+          "sums": SUM_CACHE}  # fmt: skip
+
+
+def clear_caches() -> None:
+    """Empty every cache of the kernel (for benchmarks and tests)."""
+    for c in _NAMED.values():
+        c.clear()
+
+
+def cache_stats() -> dict[str, tuple[int, int]]:
+    """``{cache: (hits, misses)}`` of the kernel's caches."""
+    return {name: (c.hits, c.misses) for name, c in _NAMED.items()}

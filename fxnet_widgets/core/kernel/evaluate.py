@@ -1,0 +1,237 @@
+"""The fast evaluation paths: the per-image decomposition, the exact sums, one layer's run.
+
+* the exact sum ``s`` is a sum of integer *product tables* gathered by input code
+  (``T_i[u] = q_w,i * u``, with the bias folded into the first); for 8-bit inputs two
+  inputs share one 65536-entry table indexed by ``u0 << 8 | u1``;
+* sums are offset by the lower end of their interval, held in the smallest dtype the
+  interval analysis allows, and all neurons of a layer are processed as one block;
+* steps 4-7 run once per distinct sum through a look-up table when that is cheaper
+  than running them per sample (the same function, :func:`.accumulate.post_accumulate`).
+"""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..formats import signed_range
+from ..network import as_codes
+from .accumulate import post_accumulate, smallest_int
+from .caches import INPUT_CACHE
+from .layers import DATA_EVENTS, IntegerLayer
+
+__all__ = ["Prepared", "prepare", "layer_sums", "LayerOut", "run_layer", "frozen"]
+
+
+@dataclass(frozen=True, eq=False)
+class Prepared:
+    key: str
+    flat: np.ndarray  # N x n_in original codes (validated)
+    shape: tuple[int, ...] | None
+    columns: tuple[np.ndarray, ...]  # contiguous per-input codes, smallest unsigned dtype
+    pairs: tuple[tuple[int, int, np.ndarray], ...]  # (i, j, index = u_i << bits | u_j)
+    singles: tuple[int, ...]
+    n: int
+
+
+def _input_key(arr: np.ndarray, bits: int, n_in: int) -> str:
+    h = hashlib.blake2b(digest_size=16)
+    h.update(f"{arr.shape}|{arr.dtype.str}|{bits}|{n_in}|".encode())
+    h.update(np.ascontiguousarray(arr).data)
+    return h.hexdigest()
+
+
+_PAIR_MIN_SAMPLES = 4096
+
+
+def prepare(codes: Any, bits: int, n_in: int) -> Prepared:
+    arr = np.asarray(codes)
+    if arr.dtype == np.bool_ or arr.dtype.kind not in "iu":
+        as_codes(arr, bits, n_in)  # raises the documented TypeError
+    key = _input_key(arr, bits, n_in)
+
+    def make() -> Prepared:
+        flat, shape = as_codes(arr, bits, n_in)
+        cdt = np.uint8 if bits <= 8 else np.uint16
+        cols = tuple(np.ascontiguousarray(flat[:, i]).astype(cdt, copy=False) for i in range(n_in))
+        pairs = []
+        singles = list(range(n_in))
+        if bits <= 8 and n_in >= 2 and flat.shape[0] >= _PAIR_MIN_SAMPLES:
+            singles = []
+            for i in range(0, n_in - 1, 2):
+                idx = cols[i].astype(np.uint16)
+                idx <<= np.uint16(bits)
+                idx |= cols[i + 1]
+                pairs.append((i, i + 1, idx))
+            if n_in % 2:
+                singles.append(n_in - 1)
+        if flat.base is None:
+            flat.setflags(write=False)
+        return Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]))
+
+    return INPUT_CACHE.get(key, make)
+
+
+# The exact sums are offset by the lower end of their interval (folded into the
+# first product table), so they are non-negative and index the per-neuron
+# look-up table of steps 4-7 directly.
+_LUT_MAX = 1 << 21
+_LUT_FRACTION = 1.0  # a table over more sums than samples costs more than it saves
+
+
+def _offset_dtype(span: int) -> type:
+    return np.int32 if span < (1 << 31) else np.int64
+
+
+def layer_sums(
+    layer: IntegerLayer, prep: Prepared | None, prev_codes: np.ndarray | None, bits: int
+) -> list[np.ndarray]:
+    """Per neuron, the exact sum minus ``sum_min`` (1-D arrays, non-negative)."""
+    sums = []
+    q_w = layer.q_w
+    if prev_codes is None:
+        assert prep is not None
+        inputs = prep.columns
+        u = np.arange(1 << bits, dtype=np.int64)
+        n = prep.n
+    else:
+        inputs = tuple(prev_codes)
+        u = np.arange(layer.inputs.lo, layer.inputs.hi + 1, dtype=np.int64)
+        n = prev_codes.shape[1]
+    span_in = len(u)
+    use_tables = span_in * layer.n_in <= (1 << 22) and (n >= 2 * span_in or n >= 65536)
+    if not use_tables:
+        mat = np.stack(inputs, axis=1).astype(np.int64) if inputs else np.zeros((n, layer.n_in), np.int64)
+        s = mat @ q_w.T + layer.q_b[None, :]
+        for j in range(layer.n_out):
+            lo, hi = layer.sum_min[j], layer.sum_max[j]
+            sums.append((s[:, j] - np.int64(lo)).astype(_offset_dtype(hi - lo), copy=False))
+        return sums
+    off = 0 if prev_codes is None else layer.inputs.lo
+    pairs = prep.pairs if prev_codes is None and prep is not None else ()
+    singles = prep.singles if prev_codes is None and prep is not None else tuple(range(layer.n_in))
+    for j in range(layer.n_out):
+        lo, hi = layer.sum_min[j], layer.sum_max[j]
+        dt = _offset_dtype(hi - lo)
+        base = int(layer.q_b[j]) - lo
+        acc = None
+        for i, k, idx in pairs:
+            tab = (u[:, None] * q_w[j, i] + u[None, :] * q_w[j, k]).reshape(-1)
+            if acc is None:
+                tab = tab + base
+            part = tab.astype(dt).take(idx)
+            acc = part if acc is None else np.add(acc, part, out=acc)
+        for i in singles:
+            tab = u * q_w[j, i]
+            if acc is None:
+                tab = tab + base
+            col = inputs[i]
+            if off:
+                col = col.astype(np.int64) - off
+            part = tab.astype(dt).take(col)
+            acc = part if acc is None else np.add(acc, part, out=acc)
+        assert acc is not None
+        sums.append(acc)
+    return sums
+
+
+def frozen(arrays: list[np.ndarray]) -> list[np.ndarray]:
+    for a in arrays:
+        a.setflags(write=False)
+    return arrays
+
+
+class LayerOut:
+    """One layer's outputs, neurons along the first axis (lazy where it pays)."""
+
+    def __init__(self, layer: IntegerLayer, shifted: list[np.ndarray], acc_direct: list[Any],
+                 codes: np.ndarray, events: dict[str, np.ndarray],
+                 observed: tuple[np.ndarray, np.ndarray]) -> None:
+        self.layer = layer
+        self._shifted = shifted  # exact sum minus sum_min, per neuron
+        # s_A where it differs from the exact sum (an array, or a look-up table and its
+        # indices, gathered only when s_A is read), else None
+        self._acc_direct = acc_direct
+        self.codes = codes  # (n_out, N)
+        self.events = events
+        self._acc: np.ndarray | None = None
+        self.observed = observed  # per neuron, the min and max exact sum on the data
+
+    @property
+    def acc(self) -> np.ndarray:
+        """s_A, (n_out, N)."""
+        if self._acc is None:
+            L = self.layer
+            alo, ahi = signed_range(L.plan.acc_bits)
+            n = self.codes.shape[1]
+            dtype = smallest_int(min(min(L.sum_min), alo), max(max(L.sum_max), ahi))
+            out: np.ndarray = np.empty((L.n_out, n), dtype=dtype)
+            for j in range(L.n_out):
+                direct = self._acc_direct[j]
+                if isinstance(direct, tuple):  # (s_A over the look-up domain, indices): gathered on first use
+                    out[j] = direct[0].take(direct[1])
+                elif direct is not None:
+                    out[j] = direct
+                else:
+                    np.add(self._shifted[j], np.int64(L.sum_min[j]), out=out[j], casting="unsafe")
+            out.setflags(write=False)
+            self._acc = out
+        return self._acc
+
+
+def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
+    n = shifted[0].shape[0] if shifted else 0
+    code_dt = smallest_int(layer.code_min, layer.code_max)
+    if layer.code_min >= 0 and layer.code_max <= 255:
+        code_dt = np.uint8
+    codes: np.ndarray = np.empty((layer.n_out, n), dtype=code_dt)
+    counts = {name: np.zeros(layer.n_out, dtype=np.int64) for name in DATA_EVENTS}
+    acc_direct: list[Any] = []
+    obs_min = np.zeros(layer.n_out, dtype=np.int64)
+    obs_max = np.zeros(layer.n_out, dtype=np.int64)
+    for j, sp in enumerate(shifted):
+        lo = layer.sum_min[j]
+        # the look-up table covers only the sums seen on the data: [lo + m0, lo + m1]
+        m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
+        if n:
+            obs_min[j], obs_max[j] = lo + m0, lo + m1
+        span = m1 - m0 + 1
+        if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
+            dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
+            out = post_accumulate(layer, dom, lo + m0, lo + m1)
+
+            def lut(v: np.ndarray, dt: Any = None, m0: int = m0) -> np.ndarray:
+                # indexed by sp directly: entries below m0 are never read
+                full = np.empty(m0 + v.shape[0], dtype=v.dtype if dt is None else dt)
+                full[m0:] = v
+                return full
+
+            np.take(lut(out["codes"], code_dt), sp, out=codes[j])
+            acc_lut = out["acc"]
+            changed = out["acc_overflow"] is not None
+            acc_direct.append((lut(np.asarray(acc_lut)), sp) if changed else None)
+            flags = [out[k] for k in DATA_EVENTS]
+            if any(f is not None and f.any() for f in flags):
+                ev = np.zeros(span, dtype=np.uint8)
+                for bit, f in enumerate(flags):
+                    if f is not None:
+                        ev |= f.astype(np.uint8) << np.uint8(bit)
+                hist = np.bincount(lut(ev).take(sp), minlength=8)
+                for bit, name in enumerate(DATA_EVENTS):
+                    counts[name][j] = int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
+        else:
+            s = sp.astype(np.int64) + np.int64(lo)
+            out = post_accumulate(layer, s, lo + m0, lo + m1)
+            codes[j] = out["codes"]
+            acc_direct.append(out["acc"] if out["acc_overflow"] is not None else None)
+            for name in DATA_EVENTS:
+                if out[name] is not None:
+                    counts[name][j] = int(np.count_nonzero(out[name]))
+    events = dict(counts)
+    events["weight_clip"] = layer.weight_clip
+    events["bias_clip"] = layer.bias_clip
+    codes.setflags(write=False)
+    return LayerOut(layer, shifted, acc_direct, codes, events, (obs_min, obs_max))
