@@ -114,7 +114,7 @@ def default_grid(network: Network, plan: Plan, layer: int = 0) -> dict[str, list
     """
     lp = plan.layers[layer]
     grid: dict[str, list[Any]] = {"weight_bits": _span("weight_bits", lp.weight_bits, 4, 0)}
-    if network.layers[layer].activation in ("sigmoid", "tanh") and lp.table_bits is not None:
+    if network.layers[layer].has_table and lp.table_bits is not None:
         grid["table_bits"] = _span("table_bits", lp.table_bits, 3, 0)
     else:
         grid["out_bits"] = _span("out_bits", lp.out_bits, 3, 0)
