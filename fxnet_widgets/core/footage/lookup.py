@@ -1,0 +1,377 @@
+"""The whole network under one plan as a table over every input colour.
+
+With three 8-bit inputs (RGB) the integer network is a function of 2^24
+colours, so it can be evaluated once for every colour and then applied to a
+frame with one gather per pixel. :func:`compile_lookup` builds that table:
+
+* colour index ``c = u_0 << (b*(n-1)) | ... | u_(n-1)`` (RGB: ``r << 16 | g << 8 | b``),
+  for any network whose inputs total at most 24 bits;
+* the table is made by the kernel's own steps: exact integer sums (layer 1 from a
+  product table of the low inputs plus a per-chunk constant; later layers as a matrix
+  product, in float64 only where every partial sum is proven below 2^53, so exact),
+  then :func:`~fxnet_widgets.core.kernel.post_accumulate` (steps 4-7, the function
+  :func:`~fxnet_widgets.core.kernel.emulate` uses), then the decision of step 8;
+  tests compare it with ``emulate`` on every colour of small networks;
+* it is built in chunks of :data:`CHUNK_COLOURS` colours: the working memory is about
+  ``64 bytes x CHUNK_COLOURS x widest layer`` (8 MB per neuron of the widest layer), on top
+  of the tables themselves (2^24 bytes of decisions, 2^21 bytes bit-packed, and the event
+  table: 2^24 x 1, 2, 4 or 8 bytes);
+* results are cached by value (network digest, plan, options).
+
+Per colour it keeps the decision (class index), optionally the output codes, and a
+bit mask of the ``(layer, neuron, event)`` pairs that happen for that colour
+(``acc_overflow``, ``table_low``, ``table_high``; only pairs that happen for some colour
+get a bit), so per-frame event counts per neuron are gathers too.
+
+Examples
+--------
+>>> from fxnet_widgets.core.network import Network
+>>> from fxnet_widgets.core.plan import Plan
+>>> import numpy as np
+>>> net = Network.from_layers([([[1.0, -1.0]], [0.0], "sigmoid")], input_bits=4)
+>>> plan = Plan.uniform(net, weight_bits=6, weight_frac=4, acc_bits=12, table_bits=8, table_frac=4, out_bits=8)
+>>> lut = compile_lookup(net, plan)
+>>> lut.size, lut.decide(np.array([[[9, 3], [3, 9]]], np.uint8)).tolist()
+(256, [[1, 0]])
+"""
+
+from __future__ import annotations
+
+import threading
+import time
+from collections import OrderedDict
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ..kernel import IntegerNetwork, post_accumulate, quantise
+from ..network import Network
+from ..plan import Plan
+
+__all__ = ["ColourLookup", "compile_lookup", "compile_float_lookup", "colour_index", "CHUNK_COLOURS",
+           "MAX_INDEX_BITS", "LOOKUP_EVENTS", "clear_lookup_cache"]  # fmt: skip
+
+#: colours evaluated together while a table is built
+CHUNK_COLOURS = 1 << 17
+#: the largest colour cube: 24 bits (three 8-bit inputs)
+MAX_INDEX_BITS = 24
+#: the per-sample events a table records, per neuron
+LOOKUP_EVENTS = ("acc_overflow", "table_low", "table_high")
+_EXACT_FLOAT = 1 << 53
+
+_CACHE: OrderedDict[Any, ColourLookup] = OrderedDict()
+_CACHE_SIZE = 3
+_LOCK = threading.Lock()
+
+
+def clear_lookup_cache() -> None:
+    """Forget every cached table."""
+    with _LOCK:
+        _CACHE.clear()
+
+
+@dataclass(frozen=True, eq=False)
+class ColourLookup:
+    """Decisions (and events, optionally output codes) of a network for every input colour.
+
+    Attributes
+    ----------
+    network, plan : the network and the plan (``plan`` is None for the float network)
+    bits, n_in : input bits and number of inputs; the table has ``2 ** (bits * n_in)`` entries
+    decisions : (size,) uint8 class index per colour (read-only)
+    packed : bit-packed decisions (``numpy.packbits(..., bitorder="little")``) for two classes, else None
+    codes : (size, n_out) output codes per colour, or None
+    events : (size,) unsigned bit mask of :attr:`event_slots` per colour, or None
+    event_slots : tuple of ``(layer, neuron, event)`` (0-based) for the bits of :attr:`events`
+    build_seconds : wall time of the build
+    """
+
+    network: Network
+    plan: Plan | None
+    bits: int
+    n_in: int
+    decisions: np.ndarray
+    packed: np.ndarray | None
+    codes: np.ndarray | None
+    events: np.ndarray | None
+    event_slots: tuple[tuple[int, int, str], ...]
+    build_seconds: float
+    n_classes: int = field(default=2)
+
+    @property
+    def size(self) -> int:
+        return int(self.decisions.shape[0])
+
+    @property
+    def nbytes(self) -> int:
+        """Memory held by the tables."""
+        return sum(int(a.nbytes) for a in (self.decisions, self.packed, self.codes, self.events) if a is not None)
+
+    def index(self, frame: Any) -> np.ndarray:
+        """The colour index of every pixel (H x W int32/int64) of an H x W x n_in frame."""
+        return colour_index(frame, self.bits, self.n_in)
+
+    def decide(self, frame: Any) -> np.ndarray:
+        """Decisions (H x W uint8 class index) of a frame: one gather per pixel.
+
+        For 8-bit RGB with two classes this is one compiled loop (numba) reading the
+        bit-packed table; otherwise a numpy ``take`` from the byte table.
+        """
+        arr = np.asarray(frame)
+        fast = _fast_rgb(arr, self)
+        if fast is not None and self.packed is not None:
+            out = np.empty(arr.shape[:-1], dtype=np.uint8)
+            fast.decide_packed(arr.reshape(-1, 3), self.packed, out.reshape(-1))
+            return out
+        return self.decisions.take(self.index(arr))
+
+    def decide_take(self, frame: Any) -> np.ndarray:
+        """:meth:`decide` the plain numpy way: pack the index, then ``np.take`` from the byte table."""
+        return self.decisions.take(self.index(frame))
+
+    def event_counts(self, index: np.ndarray) -> dict[tuple[int, int, str], int]:
+        """Per ``(layer, neuron, event)`` slot, how many of the colour indices ``index`` have that event."""
+        if self.events is None or not self.event_slots:
+            return {}
+        ev = self.events.take(np.asarray(index).reshape(-1))
+        counts: dict[tuple[int, int, str], int] = {}
+        as_bytes = ev.view(np.uint8).reshape(ev.shape[0], ev.dtype.itemsize)
+        bit_of = (np.arange(256)[:, None] >> np.arange(8)[None, :]) & 1  # (256, 8)
+        little = ev.dtype.byteorder in ("<", "=", "|") and np.little_endian
+        for byte in range(ev.dtype.itemsize):
+            col = as_bytes[:, byte if little else ev.dtype.itemsize - 1 - byte]
+            per_bit = np.bincount(col, minlength=256) @ bit_of
+            for b in range(8):
+                slot = byte * 8 + b
+                if slot < len(self.event_slots):
+                    counts[self.event_slots[slot]] = int(per_bit[b])
+        return counts
+
+    def __repr__(self) -> str:
+        what = "float network" if self.plan is None else repr(self.plan)
+        return (f"<ColourLookup {self.size} colours, {self.n_classes} classes, {len(self.event_slots)} event slots, "
+                f"{self.nbytes / 2**20:.1f} MiB: {what}>")  # fmt: skip
+
+
+def colour_index(frame: Any, bits: int = 8, n_in: int = 3) -> np.ndarray:
+    """Pack each pixel's input codes into one index (input 0 in the most significant bits)."""
+    arr = np.asarray(frame)
+    if arr.ndim < 1 or arr.shape[-1] != n_in or arr.dtype.kind not in "u":
+        raise ValueError(f"frame must be an array of unsigned codes with {n_in} channels last, not {arr.dtype} "
+                         f"{arr.shape}")  # fmt: skip
+    if bits < 8 or arr.dtype != np.uint8:
+        hi = int(arr.max()) if arr.size else 0
+        if hi >= 1 << bits:
+            raise ValueError(f"frame codes must be below 2**{bits} = {1 << bits}, not {hi}")
+    dt = np.int32 if bits * n_in < 31 else np.int64
+    idx = arr[..., 0].astype(dt)
+    for i in range(1, n_in):
+        idx <<= dt(bits)
+        idx |= arr[..., i]
+    return idx
+
+
+def _index_codes(start: int, stop: int, bits: int, n_in: int) -> np.ndarray:
+    c = np.arange(start, stop, dtype=np.int64)
+    mask = (1 << bits) - 1
+    return np.stack([(c >> (bits * (n_in - 1 - i))) & mask for i in range(n_in)], axis=1)
+
+
+def _check_cube(network: Network) -> int:
+    total = network.input_bits * network.n_in
+    if total > MAX_INDEX_BITS:
+        raise ValueError(
+            f"network inputs must total at most {MAX_INDEX_BITS} bits for a colour look-up, not {total} "
+            f"({network.n_in} inputs of {network.input_bits} bits)"
+        )
+    return total
+
+
+def _layer1_parts(intnet: IntegerNetwork, bits: int, n_in: int) -> tuple[int, np.ndarray, np.ndarray]:
+    """Split layer 1's sum into a table over the low inputs and a constant per high combination."""
+    L = intnet.layers[0]
+    n_low = min(n_in, max(1, 16 // bits))
+    n_high = n_in - n_low
+    low = _index_codes(0, 1 << (bits * n_low), bits, n_low)  # (2^lowbits, n_low)
+    low_sum = low @ L.q_w[:, n_high:].T  # int64 (2^lowbits, n_out)
+    high = _index_codes(0, 1 << (bits * n_high), bits, n_high) if n_high else np.zeros((1, 0), np.int64)
+    const = high @ L.q_w[:, :n_high].T + L.q_b[None, :]  # (2^highbits, n_out)
+    return n_low, np.ascontiguousarray(low_sum.T), np.ascontiguousarray(const.T)
+
+
+def _exact_in_float(layer: Any) -> bool:
+    umax = max(abs(layer.in_min), abs(layer.in_max))
+    bound = int(np.abs(layer.q_w).sum(axis=1).max()) * umax + int(np.abs(layer.q_b).max())
+    return bound < _EXACT_FLOAT
+
+
+def _layer_sums(layer: Any, codes: np.ndarray) -> np.ndarray:
+    if _exact_in_float(layer):  # every partial sum is an integer below 2^53: float64 adds exactly
+        s = layer.q_w.astype(np.float64) @ codes.astype(np.float64)
+        s += layer.q_b.astype(np.float64)[:, None]
+        return s.astype(np.int64)
+    return layer.q_w @ codes.astype(np.int64) + layer.q_b[:, None]
+
+
+def _uint_for(n_bits: int) -> Any:
+    for dt in (np.uint8, np.uint16, np.uint32, np.uint64):
+        if n_bits <= np.dtype(dt).itemsize * 8:
+            return dt
+    raise AssertionError(n_bits)
+
+
+def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bool,
+                 progress: Callable[[int, int], None] | None) -> ColourLookup:  # fmt: skip
+    t0 = time.perf_counter()
+    total = _check_cube(network)
+    bits, n_in = network.input_bits, network.n_in
+    intnet = quantise(network, plan)
+    size = 1 << total
+    slots = [(li, j, e) for li, L in enumerate(intnet.layers) for j in range(L.n_out) for e in LOOKUP_EVENTS]
+    if keep_events and len(slots) > 64:
+        raise ValueError(f"network must have at most 21 neurons for a per-neuron event table, not "
+                         f"{len(slots) // 3}; pass events=False")  # fmt: skip
+    n_low, low_sum, const = _layer1_parts(intnet, bits, n_in)
+    low_size = low_sum.shape[1]
+    group = max(1, CHUNK_COLOURS // low_size)
+    n_out = network.n_out
+    decisions = np.empty(size, dtype=np.uint8)
+    last = intnet.layers[-1]
+    codes_all = np.empty((size, n_out), dtype=np.int32 if last.code_min < -32768 or last.code_max > 32767
+                         else np.int16) if keep_codes else None  # fmt: skip
+    ev_dt = _uint_for(len(slots)) if keep_events else None
+    events = np.zeros(size, dtype=ev_dt) if ev_dt is not None else None
+    seen = np.zeros(len(slots), dtype=bool)
+    n_chunks = const.shape[1]
+    for h0 in range(0, n_chunks, group):
+        h1 = min(n_chunks, h0 + group)
+        start, stop = h0 * low_size, h1 * low_size
+        s = (low_sum[:, None, :] + const[:, h0:h1, None]).reshape(low_sum.shape[0], -1)
+        ev = np.zeros(stop - start, dtype=ev_dt) if ev_dt is not None else None
+        slot = 0
+        codes: np.ndarray = s
+        for li, layer in enumerate(intnet.layers):
+            if li:
+                s = _layer_sums(layer, codes)
+            out = post_accumulate(layer, s)
+            codes = out["codes"]
+            for j in range(layer.n_out):
+                for name in LOOKUP_EVENTS:
+                    flag = out[name]
+                    if ev is not None and flag is not None:
+                        f = flag[j]
+                        if f.any():
+                            seen[slot] = True
+                            ev |= f.astype(ev.dtype) << ev.dtype.type(slot)
+                    slot += 1
+        if n_out == 1:
+            assert intnet.threshold_code is not None
+            decisions[start:stop] = codes[0] >= intnet.threshold_code
+        else:
+            decisions[start:stop] = np.argmax(codes, axis=0)  # ties: the lowest index (step 8)
+        if codes_all is not None:
+            codes_all[start:stop] = codes.T
+        if events is not None and ev is not None:
+            events[start:stop] = ev
+        if progress is not None:
+            progress(stop, size)
+    ev_slots: tuple[tuple[int, int, str], ...] = ()
+    if events is not None:
+        active = np.flatnonzero(seen)
+        ev_slots = tuple(slots[i] for i in active)
+        events = _compact(events, active)
+    return _finish(network, plan, bits, n_in, decisions, codes_all, events, ev_slots, t0)
+
+
+def _compact(events: np.ndarray, active: np.ndarray) -> np.ndarray:
+    """Keep only the bits of slots that happen, renumbered 0..len(active)-1, in the smallest dtype."""
+    dt = _uint_for(max(1, len(active)))
+    if len(active) and int(active[-1]) == len(active) - 1:  # the active slots are already 0..n-1
+        return events.astype(dt) if dt != events.dtype else events
+    out = np.zeros(events.shape[0], dtype=dt)
+    for new, old in enumerate(active.tolist()):
+        out |= ((events >> events.dtype.type(old)) & events.dtype.type(1)).astype(dt) << dt(new)
+    return out
+
+
+def _finish(network: Network, plan: Plan | None, bits: int, n_in: int, decisions: np.ndarray,
+            codes: np.ndarray | None, events: np.ndarray | None, slots: tuple[tuple[int, int, str], ...],
+            t0: float) -> ColourLookup:  # fmt: skip
+    n_classes = max(2, network.n_out)
+    packed = np.packbits(decisions, bitorder="little") if n_classes == 2 and decisions.shape[0] >= 8 else None
+    for a in (decisions, packed, codes, events):
+        if a is not None:
+            a.setflags(write=False)
+    return ColourLookup(network, plan, bits, n_in, decisions, packed, codes, events, slots,
+                        time.perf_counter() - t0, n_classes)  # fmt: skip
+
+
+def _build_float(network: Network, progress: Callable[[int, int], None] | None) -> ColourLookup:
+    t0 = time.perf_counter()
+    total = _check_cube(network)
+    bits, n_in = network.input_bits, network.n_in
+    size = 1 << total
+    decisions = np.empty(size, dtype=np.uint8)
+    for start in range(0, size, CHUNK_COLOURS):
+        stop = min(size, start + CHUNK_COLOURS)
+        decisions[start:stop] = network.decide(network.predict(_index_codes(start, stop, bits, n_in)))
+        if progress is not None:
+            progress(stop, size)
+    return _finish(network, None, bits, n_in, decisions, None, None, (), t0)
+
+
+def _cached(key: Any, make: Callable[[], ColourLookup]) -> ColourLookup:
+    with _LOCK:
+        if key in _CACHE:
+            _CACHE.move_to_end(key)
+            return _CACHE[key]
+    value = make()
+    with _LOCK:
+        _CACHE[key] = value
+        while len(_CACHE) > _CACHE_SIZE:
+            _CACHE.popitem(last=False)
+    return value
+
+
+def compile_lookup(network: Network, plan: Plan, *, codes: bool = False, events: bool = True,
+                   progress: Callable[[int, int], None] | None = None) -> ColourLookup:  # fmt: skip
+    """The integer network under ``plan`` as a table over every input colour (cached by value).
+
+    Parameters
+    ----------
+    network, plan
+        The float network (inputs totalling at most 24 bits) and the plan.
+    codes
+        Also keep the output codes of every colour (``2^24 x n_out`` int16/int32).
+    events
+        Keep the per-colour event bit mask (networks of at most 21 neurons).
+    progress
+        Called as ``progress(done, total)`` in colours.
+    """
+    if not isinstance(network, Network):
+        raise TypeError(f"network must be a Network, not {type(network).__name__}")
+    if not isinstance(plan, Plan):
+        raise TypeError(f"plan must be a Plan, not {type(plan).__name__}")
+    plan.check(network)
+    key = ("fixed", network.digest, plan, bool(codes), bool(events))
+    return _cached(key, lambda: _build_fixed(network, plan, bool(codes), bool(events), progress))
+
+
+def compile_float_lookup(network: Network, *, progress: Callable[[int, int], None] | None = None) -> ColourLookup:
+    """The float network's decisions over every input colour (float64, as ``Network.predict``; cached)."""
+    if not isinstance(network, Network):
+        raise TypeError(f"network must be a Network, not {type(network).__name__}")
+    return _cached(("float", network.digest), lambda: _build_float(network, progress))
+
+
+def _fast_rgb(arr: np.ndarray, lut: ColourLookup) -> Any:
+    """The compiled loops, for C-contiguous H x W x 3 uint8 frames of an 8-bit RGB table (else None)."""
+    if lut.bits != 8 or lut.n_in != 3 or arr.dtype != np.uint8 or arr.ndim < 2 or arr.shape[-1] != 3:
+        return None
+    if not arr.flags.c_contiguous:
+        return None
+    from . import _compiled
+
+    return _compiled.kernels()
