@@ -31,6 +31,7 @@ SUBCOMMANDS = [
     "report",
     "lab",
     "publish",
+    "footage",
 ]
 
 

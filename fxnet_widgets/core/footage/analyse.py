@@ -20,6 +20,7 @@ from __future__ import annotations
 import os
 import threading
 import time
+from collections import OrderedDict
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
@@ -63,23 +64,62 @@ def _empty_events(network: Network) -> dict[str, list[list[int]]]:
     return {name: [[0] * L.n_out for L in network.layers] for name in LOOKUP_EVENTS}
 
 
-def _frame_record(fixed: ColourLookup, float_: ColourLookup, rgb: np.ndarray) -> dict[str, Any]:
+_COMBINED: OrderedDict[Any, np.ndarray] = OrderedDict()
+_COMBINED_LOCK = threading.Lock()
+
+
+def _combined(fixed: ColourLookup, flt: ColourLookup) -> np.ndarray | None:
+    """One table for the per-frame loop (two classes): bit 0 fixed, bit 1 float, bits 2.. events.
+
+    One read per pixel instead of three (the tables are larger than the caches: on a noisy
+    frame each read is a cache miss). Cached by value, like the look-ups it combines.
+    """
+    if fixed.n_classes != 2 or len(fixed.event_slots) > 62:
+        return None
+    key = (fixed.network.digest, fixed.plan, flt.network.digest)
+    with _COMBINED_LOCK:
+        if key in _COMBINED:
+            _COMBINED.move_to_end(key)
+            return _COMBINED[key]
+    dt = np.dtype(np.uint8 if len(fixed.event_slots) <= 6 else np.uint16 if len(fixed.event_slots) <= 14
+                  else np.uint32 if len(fixed.event_slots) <= 30 else np.uint64)  # fmt: skip
+    table = fixed.decisions.astype(dt)
+    table |= flt.decisions.astype(dt) << dt.type(1)
+    if fixed.events is not None and fixed.event_slots:
+        table |= fixed.events.astype(dt) << dt.type(2)
+    table.setflags(write=False)
+    with _COMBINED_LOCK:
+        _COMBINED[key] = table
+        while len(_COMBINED) > 2:
+            _COMBINED.popitem(last=False)
+    return table
+
+
+def _frame_record(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray) -> dict[str, Any]:
     arr = np.ascontiguousarray(rgb)
     n = int(arr.shape[0] * arr.shape[1])
     events = _empty_events(fixed.network)
     kern = _kernels_for(arr, fixed)
-    if kern is not None:
+    combined = _combined(fixed, flt) if kern is not None else None
+    if kern is not None and combined is not None:
+        slots = fixed.event_slots
+        counts = np.zeros(max(1, len(slots)), dtype=np.int64)
+        sums = np.zeros(3, dtype=np.int64)
+        pos_fx, pos_fl, differ = kern.frame_stats_combined(arr.reshape(-1, 3), combined, len(slots), counts, sums)
+        by_slot = {s: int(c) for s, c in zip(slots, counts.tolist())}
+        mean = (sums / max(n, 1)).tolist()
+    elif kern is not None:
         slots = fixed.event_slots
         ev = fixed.events if fixed.events is not None and slots else np.zeros(1, dtype=np.uint8)
         counts = np.zeros(max(1, len(slots)), dtype=np.int64)
         sums = np.zeros(3, dtype=np.int64)
-        pos_fx, pos_fl, differ = kern.frame_stats(arr.reshape(-1, 3), fixed.decisions, float_.decisions, ev,
+        pos_fx, pos_fl, differ = kern.frame_stats(arr.reshape(-1, 3), fixed.decisions, flt.decisions, ev,
                                                    len(slots), counts, sums)  # fmt: skip
         by_slot = {s: int(c) for s, c in zip(slots, counts.tolist())}
         mean = (sums / max(n, 1)).tolist()
     else:
         idx = fixed.index(arr)
-        fx, fl = fixed.decisions.take(idx), float_.decisions.take(idx)
+        fx, fl = fixed.decisions.take(idx), flt.decisions.take(idx)
         pos_fx, pos_fl = int(np.count_nonzero(fx == 1)), int(np.count_nonzero(fl == 1))
         differ = int(np.count_nonzero(fx != fl))
         by_slot = fixed.event_counts(idx)

@@ -53,6 +53,8 @@ from ..plan import Plan
 __all__ = ["ColourLookup", "compile_lookup", "compile_float_lookup", "colour_index", "CHUNK_COLOURS",
            "MAX_INDEX_BITS", "LOOKUP_EVENTS", "clear_lookup_cache"]  # fmt: skip
 
+#: build with the compiled loop (numba) when every neuron's sum interval has its table
+USE_COMPILED = True
 #: colours evaluated together while a table is built
 CHUNK_COLOURS = 1 << 17
 #: the largest colour cube: 24 bits (three 8-bit inputs)
@@ -242,30 +244,46 @@ def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bo
     codes_all = np.empty((size, n_out), dtype=np.int32 if last.code_min < -32768 or last.code_max > 32767
                          else np.int16) if keep_codes else None  # fmt: skip
     ev_dt = _uint_for(len(slots)) if keep_events else None
-    events = np.zeros(size, dtype=ev_dt) if ev_dt is not None else None
-    seen = np.zeros(len(slots), dtype=bool)
+    domains = [_domain_tables(layer) for layer in intnet.layers]
+    compiled = USE_COMPILED and all(d is not None for dl in domains for d in dl)
+    events = np.zeros(size, dtype=ev_dt) if ev_dt is not None and not compiled else None
+    seen_bits = [0] * (len(slots) // 3)
     n_chunks = const.shape[1]
-    for h0 in range(0, n_chunks, group):
+    from . import _compiled
+
+    kern = _compiled.kernels() if USE_COMPILED and all(d is not None for dl in domains for d in dl) else None
+    if kern is not None:  # one compiled loop over the colours, same integers, same tables
+        flat = _flatten(intnet, domains)
+        ev_full = np.zeros(size if keep_events else 1, dtype=np.uint64)
+        seen_arr = np.zeros(len(slots) // 3, dtype=np.uint8)
+        dummy = np.zeros((1, n_out), dtype=np.int64)
+        low_t, const_t = np.ascontiguousarray(low_sum.T), np.ascontiguousarray(const.T)
+        for h0 in range(0, n_chunks, group):
+            h1 = min(n_chunks, h0 + group)
+            kern.build(low_t, const_t, h0, h1, *flat, intnet.threshold_code or 0, decisions, keep_codes,
+                       codes_all if codes_all is not None else dummy, keep_events, ev_full, seen_arr)  # fmt: skip
+            if progress is not None:
+                progress(h1 * low_size, size)
+        seen_bits = [int(v) for v in seen_arr.tolist()]
+        h_range: range = range(0)
+    else:
+        h_range = range(0, n_chunks, group)
+    for h0 in h_range:
         h1 = min(n_chunks, h0 + group)
         start, stop = h0 * low_size, h1 * low_size
         s = (low_sum[:, None, :] + const[:, h0:h1, None]).reshape(low_sum.shape[0], -1)
         ev = np.zeros(stop - start, dtype=ev_dt) if ev_dt is not None else None
-        slot = 0
+        base = 0
         codes: np.ndarray = s
         for li, layer in enumerate(intnet.layers):
             if li:
                 s = _layer_sums(layer, codes)
-            out = post_accumulate(layer, s)
-            codes = out["codes"]
-            for j in range(layer.n_out):
-                for name in LOOKUP_EVENTS:
-                    flag = out[name]
-                    if ev is not None and flag is not None:
-                        f = flag[j]
-                        if f.any():
-                            seen[slot] = True
-                            ev |= f.astype(ev.dtype) << ev.dtype.type(slot)
-                    slot += 1
+            codes, bits_of = _apply_layer(layer, s, domains[li])
+            for j, b in enumerate(bits_of):
+                if b is not None and ev is not None:
+                    seen_bits[base + j] |= int(np.bitwise_or.reduce(b))
+                    ev |= b.astype(ev.dtype) << ev.dtype.type(3 * (base + j))
+            base += layer.n_out
         if n_out == 1:
             assert intnet.threshold_code is not None
             decisions[start:stop] = codes[0] >= intnet.threshold_code
@@ -278,22 +296,116 @@ def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bo
         if progress is not None:
             progress(stop, size)
     ev_slots: tuple[tuple[int, int, str], ...] = ()
-    if events is not None:
+    if keep_events:
+        seen = np.array([(seen_bits[k // 3] >> (k % 3)) & 1 for k in range(len(slots))], dtype=bool)
         active = np.flatnonzero(seen)
         ev_slots = tuple(slots[i] for i in active)
-        events = _compact(events, active)
+        if kern is not None:
+            events = np.zeros(size, dtype=_uint_for(max(1, len(active))))
+            kern.compact(ev_full, active.astype(np.int64), events)
+        else:
+            assert events is not None
+            events = _compact(events, active)
     return _finish(network, plan, bits, n_in, decisions, codes_all, events, ev_slots, t0)
 
 
+def _flatten(intnet: IntegerNetwork, domains: list[list[Any]]) -> tuple[np.ndarray, ...]:
+    """The integer network as flat arrays for the compiled loop (layers 2.. weights, biases, tables)."""
+    sizes = np.array([L.n_out for L in intnet.layers], dtype=np.int64)
+    goff = np.concatenate([[0], np.cumsum(sizes)[:-1]]).astype(np.int64)
+    ws, woff, pos = [], [], 0
+    for L in intnet.layers:
+        woff.append(pos)
+        if L.index:
+            ws.append(L.q_w.reshape(-1).astype(np.int64))
+            pos += L.q_w.size
+    weights = np.concatenate(ws) if ws else np.zeros(1, np.int64)
+    biases = np.concatenate([L.q_b.astype(np.int64) for L in intnet.layers])
+    lo = np.array([d[0] for dl in domains for d in dl], dtype=np.int64)
+    lengths = [d[1].shape[0] for dl in domains for d in dl]
+    toff = np.concatenate([[0], np.cumsum(lengths)[:-1]]).astype(np.int64)
+    tab_codes = np.concatenate([d[1].astype(np.int32) for dl in domains for d in dl])  # codes: <= 16 bits
+    tab_bits = np.concatenate([d[2] for dl in domains for d in dl])
+    return weights, biases, sizes, np.array(woff, np.int64), goff, lo, toff, tab_codes, tab_bits
+
+
 def _compact(events: np.ndarray, active: np.ndarray) -> np.ndarray:
-    """Keep only the bits of slots that happen, renumbered 0..len(active)-1, in the smallest dtype."""
+    """Keep only the bits of slots that happen, renumbered 0..len(active)-1, in the smallest dtype.
+
+    Done a byte at a time through 256-entry tables (one gather per byte of the mask).
+    """
     dt = _uint_for(max(1, len(active)))
     if len(active) and int(active[-1]) == len(active) - 1:  # the active slots are already 0..n-1
         return events.astype(dt) if dt != events.dtype else events
+    new_of = {int(old): new for new, old in enumerate(active.tolist())}
     out = np.zeros(events.shape[0], dtype=dt)
-    for new, old in enumerate(active.tolist()):
-        out |= ((events >> events.dtype.type(old)) & events.dtype.type(1)).astype(dt) << dt(new)
+    as_bytes = events.view(np.uint8).reshape(events.shape[0], events.dtype.itemsize)
+    for k in range(events.dtype.itemsize):
+        table = np.zeros(256, dtype=dt)
+        for v in range(256):
+            table[v] = sum(1 << new_of[8 * k + b] for b in range(8) if v >> b & 1 and 8 * k + b in new_of)
+        if table.any():
+            out |= table.take(as_bytes[:, k if np.little_endian else events.dtype.itemsize - 1 - k])
     return out
+
+
+#: a neuron whose exact sums span at most this many integers gets steps 4-7 as a table
+DOMAIN_MAX = 1 << 22
+
+
+def _domain_tables(layer: Any) -> list[tuple[int, np.ndarray, np.ndarray] | None]:
+    """Per neuron, steps 4-7 applied once to every integer of its sum interval (the kernel's own trick).
+
+    Returns ``(sum_min, codes over the interval, event bits over the interval)`` (bit 0
+    ``acc_overflow``, 1 ``table_low``, 2 ``table_high``), or None for a wide interval.
+    """
+    out: list[tuple[int, np.ndarray, np.ndarray] | None] = []
+    for j in range(layer.n_out):
+        lo, hi = int(layer.sum_min[j]), int(layer.sum_max[j])
+        if hi - lo + 1 > DOMAIN_MAX:
+            out.append(None)
+            continue
+        r = post_accumulate(layer, np.arange(lo, hi + 1, dtype=np.int64), lo, hi)
+        bits = np.zeros(hi - lo + 1, dtype=np.uint8)
+        for b, name in enumerate(LOOKUP_EVENTS):
+            if r[name] is not None:
+                bits |= r[name].astype(np.uint8) << np.uint8(b)
+        out.append((lo, np.asarray(r["codes"]), bits))
+    return out
+
+
+def _apply_layer(layer: Any, s: np.ndarray,
+                 domains: list[tuple[int, np.ndarray, np.ndarray] | None]) -> tuple[np.ndarray, list[Any]]:  # fmt: skip
+    """Codes (n_out, N) and per-neuron event bits (uint8 (N,) or None) of exact sums ``s`` (n_out, N)."""
+    if all(d is None for d in domains):
+        r = post_accumulate(layer, s)
+        bits_of: list[Any] = []
+        for j in range(layer.n_out):
+            b = None
+            for k, name in enumerate(LOOKUP_EVENTS):
+                if r[name] is not None:
+                    part = r[name][j].astype(np.uint8) << np.uint8(k)
+                    b = part if b is None else b | part
+            bits_of.append(b)
+        return np.asarray(r["codes"]), bits_of
+    dt = np.result_type(*[d[1].dtype for d in domains if d is not None])
+    codes = np.empty(s.shape, dtype=dt)
+    bits_of = []
+    for j, d in enumerate(domains):
+        if d is None:
+            r = post_accumulate(layer, s[j : j + 1])
+            codes[j] = r["codes"][0]
+            b = np.zeros(s.shape[1], dtype=np.uint8)
+            for k, name in enumerate(LOOKUP_EVENTS):
+                if r[name] is not None:
+                    b |= r[name][0].astype(np.uint8) << np.uint8(k)
+            bits_of.append(b)
+            continue
+        lo, tab_codes, tab_bits = d
+        idx = s[j] - np.int64(lo)  # within [0, span): s lies in the proven interval
+        np.take(tab_codes, idx, out=codes[j])
+        bits_of.append(tab_bits.take(idx) if tab_bits.any() else None)
+    return codes, bits_of
 
 
 def _finish(network: Network, plan: Plan | None, bits: int, n_in: int, decisions: np.ndarray,
@@ -314,12 +426,29 @@ def _build_float(network: Network, progress: Callable[[int, int], None] | None) 
     bits, n_in = network.input_bits, network.n_in
     size = 1 << total
     decisions = np.empty(size, dtype=np.uint8)
-    for start in range(0, size, CHUNK_COLOURS):
-        stop = min(size, start + CHUNK_COLOURS)
-        decisions[start:stop] = network.decide(network.predict(_index_codes(start, stop, bits, n_in)))
-        if progress is not None:
-            progress(stop, size)
+    with _one_blas_thread():
+        for start in range(0, size, CHUNK_COLOURS):
+            stop = min(size, start + CHUNK_COLOURS)
+            decisions[start:stop] = network.decide(network.predict(_index_codes(start, stop, bits, n_in)))
+            if progress is not None:
+                progress(stop, size)
     return _finish(network, None, bits, n_in, decisions, None, None, (), t0)
+
+
+def _one_blas_thread() -> Any:
+    """Limit BLAS to one thread while the float table is built, where threadpoolctl is installed.
+
+    The float products are tall and thin (N x 3 by 3 x n): BLAS threads gain nothing there, and
+    on a busy machine they wait for each other (measured: 40x slower with 2 threads on 2
+    loaded cores). Row results do not depend on the thread count.
+    """
+    try:
+        from threadpoolctl import threadpool_limits  # type: ignore[import-untyped]
+    except ImportError:
+        import contextlib
+
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1, user_api="blas")
 
 
 def _cached(key: Any, make: Callable[[], ColourLookup]) -> ColourLookup:
