@@ -21,7 +21,7 @@ import os
 import threading
 import time
 from collections import OrderedDict
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -31,7 +31,7 @@ from ..fileio import atomic_write_json, atomic_writer
 from ..network import Network
 from ..plan import Plan
 from .lookup import LOOKUP_EVENTS, ColourLookup, compile_float_lookup, compile_lookup
-from .reader import Footage, open_footage
+from .reader import Footage, Frame, open_footage
 
 __all__ = ["FootageAnalysis", "analyse_footage", "frame_decisions", "WORST_FRAMES"]
 
@@ -237,14 +237,16 @@ def _is_cancelled(cancel: Any) -> bool:
 def analyse_footage(
     network: Network,
     plan: Plan,
-    source: Footage | str | os.PathLike[str],
+    source: Footage | Sequence[Frame] | str | os.PathLike[str],
     *,
     frames: str | slice | None = None,
     progress: Progress | None = None,
     cancel: threading.Event | Callable[[], bool] | None = None,
     on_frame: Callable[[int, dict[str, Any]], None] | None = None,
+    source_info: dict[str, Any] | None = None,
 ) -> FootageAnalysis:
-    """Analyse every frame of ``source`` (a path for :func:`~.reader.open_footage`, or a :class:`Footage`).
+    """Analyse every frame of ``source``: a path for :func:`~.reader.open_footage`, a :class:`Footage`,
+    or a list of decoded :class:`~.reader.Frame` (then ``source_info`` is the result's ``source``).
 
     Parameters
     ----------
@@ -263,22 +265,31 @@ def analyse_footage(
     if network.n_in != 3 or network.input_bits != 8:
         raise ValueError(f"network must take 3 inputs of 8 bits (RGB) for footage, not {network.n_in} inputs of "
                          f"{network.input_bits} bits")  # fmt: skip
-    clip = source if isinstance(source, Footage) else open_footage(source, frames)
+    held: Sequence[Frame] | None = None
+    clip: Footage | None = None
+    if isinstance(source, (list, tuple)):  # frames already decoded (a widget holds its clip)
+        held = source
+    elif isinstance(source, Footage):
+        clip = source
+    else:
+        clip = open_footage(source, frames)  # type: ignore[arg-type]
     t0 = time.perf_counter()
     fixed = compile_lookup(network, plan)
     t1 = time.perf_counter()
     flt = compile_float_lookup(network)
     _frame_record(fixed, flt, np.zeros((1, 1, 3), np.uint8))  # compiles the fused loop before the clock starts
     t2 = time.perf_counter()
-    sl = clip.frames
     total = 0
-    if clip.info.frames is not None:
+    if held is not None:
+        total = len(held)
+    elif clip is not None and clip.info.frames is not None:
+        sl = clip.frames
         stop = clip.info.frames if sl.stop is None else min(sl.stop, clip.info.frames)
         total = max(0, -(-(stop - sl.start) // sl.step))
     records: list[dict[str, Any]] = []
     decode = analyse = 0.0
     cancelled = False
-    it = iter(clip)
+    it = iter(held) if held is not None else iter(clip) if clip is not None else iter(())
     while True:
         if _is_cancelled(cancel):
             cancelled = True
@@ -301,4 +312,5 @@ def analyse_footage(
     if progress is not None and total and len(records) < total and not cancelled:
         progress(len(records), len(records))  # fewer frames than announced: finish the bar
     timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse}
-    return FootageAnalysis(clip.info.to_dict(), plan, network, records, cancelled, timing)
+    info = clip.info.to_dict() if clip is not None else dict(source_info or {})
+    return FootageAnalysis(info, plan, network, records, cancelled, timing)

@@ -452,6 +452,8 @@ def _one_blas_thread() -> Any:
 
 
 def _cached(key: Any, make: Callable[[], ColourLookup]) -> ColourLookup:
+    """Fixed-point tables (the last :data:`_CACHE_SIZE` plans) and float tables are kept apart,
+    so trying plans never evicts the float table."""
     with _LOCK:
         if key in _CACHE:
             _CACHE.move_to_end(key)
@@ -459,8 +461,10 @@ def _cached(key: Any, make: Callable[[], ColourLookup]) -> ColourLookup:
     value = make()
     with _LOCK:
         _CACHE[key] = value
-        while len(_CACHE) > _CACHE_SIZE:
-            _CACHE.popitem(last=False)
+        for kind, keep in (("fixed", _CACHE_SIZE), ("float", 2)):
+            keys = [k for k in _CACHE if k[0] == kind]
+            for k in keys[: max(0, len(keys) - keep)]:
+                del _CACHE[k]
     return value
 
 
