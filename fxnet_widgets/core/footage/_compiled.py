@@ -1,5 +1,9 @@
 """Fused loops over 8-bit RGB frames (numba), compiled on first use.
 
+Compiled code is cached on disk by numba (``cache=True``: beside this file, or in the
+user's cache directory when the package folder is read-only), so only the first run on a
+machine pays for compiling.
+
 Each loop reads a pixel's three codes, forms ``r << 16 | g << 8 | b`` and reads
 the tables at that index: no index array, no second pass. The results are the
 same gathers as the numpy path (tests compare them), only fused.
@@ -22,13 +26,13 @@ class _Kernels:
     def __init__(self) -> None:
         import numba
 
-        @numba.njit(cache=False, nogil=True, boundscheck=False)
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
         def decide_packed(rgb: np.ndarray, packed: np.ndarray, out: np.ndarray) -> None:  # pragma: no cover
             for i in range(rgb.shape[0]):
                 c = (np.int32(rgb[i, 0]) << 16) | (np.int32(rgb[i, 1]) << 8) | np.int32(rgb[i, 2])
                 out[i] = (packed[c >> 3] >> (c & 7)) & 1
 
-        @numba.njit(cache=False, nogil=True, boundscheck=False)
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
         def frame_stats(rgb: np.ndarray, fixed: np.ndarray, flt: np.ndarray, events: np.ndarray, n_slots: int,
                         slot_counts: np.ndarray, sums: np.ndarray) -> tuple[int, int, int]:  # pragma: no cover
             # fixed/flt: byte tables of class indices; counts positives (class 1) and disagreements
@@ -62,7 +66,7 @@ class _Kernels:
             sums[2] += s2
             return pos_fx, pos_fl, differ
 
-        @numba.njit(cache=False, nogil=True, boundscheck=False)
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
         def both(rgb: np.ndarray, fixed: np.ndarray, flt: np.ndarray, out_fx: np.ndarray,
                  out_fl: np.ndarray) -> None:  # fmt: skip # pragma: no cover
             for i in range(rgb.shape[0]):
@@ -70,7 +74,7 @@ class _Kernels:
                 out_fx[i] = fixed[c]
                 out_fl[i] = flt[c]
 
-        @numba.njit(cache=False, nogil=True, boundscheck=False)
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
         def frame_stats_combined(rgb: np.ndarray, table: np.ndarray, n_slots: int, slot_counts: np.ndarray,
                                  sums: np.ndarray) -> tuple[int, int, int]:  # pragma: no cover
             # table: bit 0 fixed decision, bit 1 float decision, bits 2.. the event slots: one read per pixel
@@ -101,7 +105,7 @@ class _Kernels:
             sums[2] += s2
             return pos_fx, pos_fl, differ
 
-        @numba.njit(cache=False, nogil=True, boundscheck=False)
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
         def build(low_sum: np.ndarray, const: np.ndarray, h0: int, h1: int, weights: np.ndarray,
                   biases: np.ndarray, sizes: np.ndarray, woff: np.ndarray, goff: np.ndarray, lo: np.ndarray,
                   toff: np.ndarray, tab_codes: np.ndarray, tab_bits: np.ndarray, thr: int,
@@ -160,7 +164,7 @@ class _Kernels:
                     if keep_events:
                         events[idx] = ev
 
-        @numba.njit(cache=False, nogil=True, boundscheck=False)
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
         def compact(events: np.ndarray, active: np.ndarray, out: np.ndarray) -> None:  # pragma: no cover
             for i in range(events.shape[0]):
                 e = np.uint64(events[i])

@@ -254,7 +254,7 @@ def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bo
     kern = _compiled.kernels() if USE_COMPILED and all(d is not None for dl in domains for d in dl) else None
     if kern is not None:  # one compiled loop over the colours, same integers, same tables
         flat = _flatten(intnet, domains)
-        ev_full = np.zeros(size if keep_events else 1, dtype=np.uint64)
+        ev_full = np.zeros(size if keep_events else 1, dtype=_uint_for(max(1, len(slots))))
         seen_arr = np.zeros(len(slots) // 3, dtype=np.uint8)
         dummy = np.zeros((1, n_out), dtype=np.int64)
         low_t, const_t = np.ascontiguousarray(low_sum.T), np.ascontiguousarray(const.T)
