@@ -12,6 +12,7 @@ import pytest
 from PIL import Image
 
 from fxnet_widgets.core.fileio import FileFormatError
+from fxnet_widgets.core.footage import _build as build_module
 from fxnet_widgets.core.footage import (
     analyse_footage,
     colour_index,
@@ -22,7 +23,6 @@ from fxnet_widgets.core.footage import (
     parse_frames,
     write_demo_clip,
 )
-from fxnet_widgets.core.footage import lookup as lookup_module
 from fxnet_widgets.core.footage.lookup import clear_lookup_cache
 from fxnet_widgets.core.kernel import emulate
 from fxnet_widgets.core.network import Network
@@ -292,9 +292,9 @@ def _random_plan(rng, net):
 @pytest.mark.parametrize("compiled", [True, False], ids=["compiled", "numpy"])
 @pytest.mark.parametrize("seed", range(8))
 def test_lookup_equals_emulate_on_every_colour(seed, compiled, monkeypatch):
-    monkeypatch.setattr(lookup_module, "USE_COMPILED", compiled)
+    monkeypatch.setattr(build_module, "USE_COMPILED", compiled)
     if not compiled and seed % 2:  # steps 4-7 on every colour, not through the per-interval tables
-        monkeypatch.setattr(lookup_module, "DOMAIN_MAX", 0)
+        monkeypatch.setattr(build_module, "DOMAIN_MAX", 0)
     clear_lookup_cache()
     rng = np.random.default_rng(100 + seed)
     n_in, bits = [(3, 4), (2, 6), (3, 5), (1, 12)][seed % 4]
