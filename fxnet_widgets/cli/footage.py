@@ -1,4 +1,4 @@
-"""``fxnet footage NETWORK PLAN SOURCE -o OUT.json|.npz [--frames A:B:S] [--json] [--quiet]``."""
+"""``fxnet footage NETWORK PLAN SOURCE -o OUT.json|.npz [--frames A:B:S] [--labels MASKS] [--json] [--quiet]``."""
 
 from __future__ import annotations
 
@@ -23,6 +23,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("source", help="video file, image folder or glob pattern (quote it)")
     p.add_argument("-o", "--output", required=True, help="result file (.json or .npz)")
     p.add_argument("--frames", default=None, metavar="A:B:S", help="frames A (included) to B (excluded), every S-th")
+    p.add_argument("--labels", default=None, metavar="MASKS",
+                   help="label masks, one per frame (video, image folder or glob): white = positive")
     p.add_argument("--rate", type=float, default=None, help="frame rate of an image sequence (frames/s)")
     p.add_argument("--json", action="store_true", help="print the totals as one JSON object")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -37,7 +39,8 @@ def run(args: argparse.Namespace) -> int:
         raise CliError(f"fxnet: {out}: the output file name must end in .json or .npz")
     clip = open_footage(args.source, args.frames, rate=args.rate)
     progress = None if args.quiet else text_progress(sys.stderr, label="frames")
-    result = analyse_footage(net, plan, clip, progress=progress)
+    labels = open_footage(args.labels, args.frames) if args.labels else None
+    result = analyse_footage(net, plan, clip, progress=progress, labels=labels)
     result.save(out)
     t = result.timing
     n = len(result.frames)

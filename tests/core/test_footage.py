@@ -404,3 +404,27 @@ def test_analysis_needs_rgb8_network(demo_clip):
 
 def teardown_module() -> None:
     clear_lookup_cache()
+
+
+def test_label_masks_give_accuracy_per_frame(tmp_path):
+    from fxnet_widgets.core.images import save_png
+
+    net = Network.load("assets/network.json")
+    plan = Plan.load("assets/plan.json", net).replace(acc_bits=13, out_bits=5)
+    frames = demo_frames(4, 48, 32)
+    (tmp_path / "f").mkdir()
+    (tmp_path / "m").mkdir()
+    for i, f in enumerate(frames):
+        save_png(tmp_path / "f" / f"{i}.png", f)
+        # the masks are the float network's own decisions: float accuracy must be exactly 1
+        save_png(tmp_path / "m" / f"{i}.png", (emulate(net, plan, f).float_decisions * 255).astype(np.uint8))
+    result = analyse_footage(net, plan, tmp_path / "f", labels=tmp_path / "m")
+    for rec, f in zip(result.frames, frames):
+        ref = emulate(net, plan, f)
+        assert rec["accuracy_float"] == 1.0
+        assert rec["accuracy_fixed"] == round(1 - ref.mismatch / f.shape[0] / f.shape[1], 6)
+        assert rec["labelled_positive"] == int(ref.float_decisions.sum())
+    assert result.totals["accuracy_float"] == 1.0 and "accuracy on the labels" in result.summary()
+    (tmp_path / "m" / "3.png").unlink()
+    with pytest.raises(ValueError, match=r"labels must have a mask for frame 3, not none$"):
+        analyse_footage(net, plan, tmp_path / "f", labels=tmp_path / "m")

@@ -166,9 +166,16 @@ class FootageAnalysis:
             "events": {k: sum(sum(row) for row in v) for k, v in events.items()},
             "events_per_neuron": events,
             "worst_frames": [{"index": r["index"], "differ": r["differ"]} for r in worst if r["differ"]],
+            **self._accuracy_totals(pixels),
             "broken_frames": list(self.source.get("broken", [])),
             "cancelled": self.cancelled,
         }  # fmt: skip
+
+    def _accuracy_totals(self, pixels: int) -> dict[str, Any]:
+        if not self.frames or "accuracy_fixed" not in self.frames[0]:
+            return {}
+        return {key: round(sum(r[key] * r["pixels"] for r in self.frames) / max(1, pixels), 6)
+                for key in ("accuracy_fixed", "accuracy_float")}  # fmt: skip
 
     def series(self, key: str) -> np.ndarray:
         """One number per frame: ``"index"``, ``"time_s"``, ``"differ"``, ``"positive_fixed"``,
@@ -176,7 +183,7 @@ class FootageAnalysis:
         if key == "events":
             return np.array([sum(sum(sum(row) for row in v) for v in r["events"].values()) for r in self.frames],
                             dtype=np.int64)  # fmt: skip
-        dtype = np.float64 if key == "time_s" else np.int64
+        dtype = np.float64 if key in ("time_s", "accuracy_fixed", "accuracy_float") else np.int64
         return np.array([r[key] for r in self.frames], dtype=dtype)
 
     def to_dict(self) -> dict[str, Any]:
@@ -186,7 +193,10 @@ class FootageAnalysis:
 
     def npz_arrays(self) -> dict[str, np.ndarray]:
         """Per-frame arrays: the series, ``mean_rgb`` (F x 3) and ``<event>_<layer>`` (F x n_out_l)."""
-        out = {k: self.series(k) for k in ("index", "time_s", "pixels", "positive_fixed", "positive_float", "differ")}
+        keys = ["index", "time_s", "pixels", "positive_fixed", "positive_float", "differ"]
+        if self.frames and "accuracy_fixed" in self.frames[0]:
+            keys += ["labelled_positive", "accuracy_fixed", "accuracy_float"]
+        out = {k: self.series(k) for k in keys}
         out["mean_rgb"] = np.array([r["mean_rgb"] for r in self.frames], dtype=np.float64).reshape(-1, 3)
         for name in LOOKUP_EVENTS:
             for li, L in enumerate(self.network.layers):
@@ -216,6 +226,9 @@ class FootageAnalysis:
             f"  positive pixels: fixed {t['positive_fixed']}, float {t['positive_float']}",
             "  events: " + ", ".join(f"{k} {v}" for k, v in t["events"].items()),
         ]
+        if "accuracy_fixed" in t:
+            lines.append(f"  accuracy on the labels: fixed {100 * t['accuracy_fixed']:.3f} %, "
+                         f"float {100 * t['accuracy_float']:.3f} %")  # fmt: skip
         if t["worst_frames"]:
             lines.append("  worst frames: " + ", ".join(f"{w['index']} ({w['differ']})" for w in t["worst_frames"]))
         for b in t["broken_frames"]:
@@ -224,6 +237,38 @@ class FootageAnalysis:
 
     def __repr__(self) -> str:
         return f"<FootageAnalysis {len(self.frames)} frames, {self.totals['differ']} pixels differ>"
+
+
+class _Masks:
+    """Label masks read in step with the frames, matched by frame index."""
+
+    def __init__(self, clip: Footage) -> None:
+        self.name = clip.info.source
+        self._it = iter(clip)
+        self._cur: Frame | None = None
+
+    def mask(self, index: int, shape: tuple[int, ...]) -> np.ndarray:
+        while self._cur is None or self._cur.index < index:
+            self._cur = next(self._it, None)
+            if self._cur is None:
+                raise ValueError(f"{self.name}: labels must have a mask for frame {index}, not none")
+        if self._cur.index != index:
+            raise ValueError(f"{self.name}: labels must have a mask for frame {index}, not only for {self._cur.index}")
+        m = self._cur.rgb
+        if m.shape[:2] != tuple(shape):
+            raise ValueError(f"{self.name}: mask of frame {index} must be {shape[1]}x{shape[0]}, "
+                             f"not {m.shape[1]}x{m.shape[0]}")  # fmt: skip
+        return np.asarray(m[..., 0] >= 128)
+
+
+def _accuracy(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray, positive: np.ndarray) -> dict[str, Any]:
+    fx, fl = frame_decisions(fixed, flt, rgb)
+    n = max(1, positive.size)
+    return {
+        "labelled_positive": int(np.count_nonzero(positive)),
+        "accuracy_fixed": round(int(np.count_nonzero((fx == 1) == positive)) / n, 6),
+        "accuracy_float": round(int(np.count_nonzero((fl == 1) == positive)) / n, 6),
+    }
 
 
 def _is_cancelled(cancel: Any) -> bool:
@@ -244,6 +289,7 @@ def analyse_footage(
     cancel: threading.Event | Callable[[], bool] | None = None,
     on_frame: Callable[[int, dict[str, Any]], None] | None = None,
     source_info: dict[str, Any] | None = None,
+    labels: Footage | str | os.PathLike[str] | None = None,
 ) -> FootageAnalysis:
     """Analyse every frame of ``source``: a path for :func:`~.reader.open_footage`, a :class:`Footage`,
     or a list of decoded :class:`~.reader.Frame` (then ``source_info`` is the result's ``source``).
@@ -261,6 +307,10 @@ def analyse_footage(
         current frame and the result says ``cancelled``.
     on_frame
         Called with ``(position, record)`` after each frame.
+    labels
+        Label masks, one per frame (same frame indices: a video or an image folder, read with the
+        same ``frames`` range): a pixel is positive (class 1) where the mask's first channel is at
+        least 128. Each record then has ``labelled_positive``, ``accuracy_fixed`` and ``accuracy_float``.
     """
     if network.n_in != 3 or network.input_bits != 8:
         raise ValueError(f"network must take 3 inputs of 8 bits (RGB) for footage, not {network.n_in} inputs of "
@@ -290,6 +340,8 @@ def analyse_footage(
     decode = analyse = 0.0
     cancelled = False
     it = iter(held) if held is not None else iter(clip) if clip is not None else iter(())
+    masks = _Masks(labels if isinstance(labels, Footage) else open_footage(labels, frames)) if labels is not None \
+        else None  # fmt: skip
     while True:
         if _is_cancelled(cancel):
             cancelled = True
@@ -301,6 +353,8 @@ def analyse_footage(
             break
         tb = time.perf_counter()
         rec = {"index": frame.index, "time_s": round(float(frame.time_s), 6), **_frame_record(fixed, flt, frame.rgb)}
+        if masks is not None:
+            rec.update(_accuracy(fixed, flt, frame.rgb, masks.mask(frame.index, frame.rgb.shape[:2])))
         records.append(rec)
         tc = time.perf_counter()
         decode += tb - ta
