@@ -1,4 +1,5 @@
-"""``fxnet footage NETWORK PLAN SOURCE -o OUT.json|.npz [--frames A:B:S] [--labels MASKS] [--json] [--quiet]``."""
+"""``fxnet footage NETWORK PLAN SOURCE -o OUT.json|.npz [--frames A:B:S] [--labels MASKS]
+[--overlay OUT.mkv] [--json] [--quiet]``."""
 
 from __future__ import annotations
 
@@ -25,6 +26,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--frames", default=None, metavar="A:B:S", help="frames A (included) to B (excluded), every S-th")
     p.add_argument("--labels", default=None, metavar="MASKS",
                    help="label masks, one per frame (video, image folder or glob): white = positive")
+    p.add_argument("--overlay", default=None, metavar="OUT.mkv|OUT.mp4",
+                   help="also write a video with the disagreement marked and the fixed mask outlined")
     p.add_argument("--rate", type=float, default=None, help="frame rate of an image sequence (frames/s)")
     p.add_argument("--json", action="store_true", help="print the totals as one JSON object")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -37,10 +40,14 @@ def run(args: argparse.Namespace) -> int:
     out = check_output_path(args.output)
     if not out.endswith((".json", ".npz")):
         raise CliError(f"fxnet: {out}: the output file name must end in .json or .npz")
+    if args.overlay is not None:
+        check_output_path(args.overlay)
+        if not args.overlay.endswith((".mkv", ".mp4")):
+            raise CliError(f"fxnet: {args.overlay}: the overlay file name must end in .mkv or .mp4")
     clip = open_footage(args.source, args.frames, rate=args.rate)
     progress = None if args.quiet else text_progress(sys.stderr, label="frames")
     labels = open_footage(args.labels, args.frames) if args.labels else None
-    result = analyse_footage(net, plan, clip, progress=progress, labels=labels)
+    result = analyse_footage(net, plan, clip, progress=progress, labels=labels, overlay=args.overlay)
     result.save(out)
     t = result.timing
     n = len(result.frames)
@@ -56,5 +63,5 @@ def run(args: argparse.Namespace) -> int:
         print(f"  colour: {clip.info.colour}")
         fps = " ".join(f"{k} {v:.1f}" for k, v in speed.items() if v is not None)
         print(f"  timing (varies): {fps}")
-        print(f"wrote {out}")
+        print(f"wrote {out}" + (f" and {args.overlay}" if args.overlay else ""))
     return 0

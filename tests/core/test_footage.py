@@ -428,3 +428,30 @@ def test_label_masks_give_accuracy_per_frame(tmp_path):
     (tmp_path / "m" / "3.png").unlink()
     with pytest.raises(ValueError, match=r"labels must have a mask for frame 3, not none$"):
         analyse_footage(net, plan, tmp_path / "f", labels=tmp_path / "m")
+
+
+def test_overlay_video_marks_the_disagreement(demo_clip, tmp_path):
+    from fxnet_widgets.core.footage.overlay import ONLY_FIXED, ONLY_FLOAT, overlay_frame
+
+    net = Network.load("assets/network.json")
+    plan = Plan.load("assets/plan.json", net).replace(acc_bits=13, out_bits=5)
+    out = tmp_path / "overlay.mkv"
+    analyse_footage(net, plan, demo_clip, frames="0:6", overlay=out)
+    got = open_footage(out).read()  # FFV1 RGB: lossless, so the overlay comes back exactly
+    frames = demo_frames(12, 96, 64)
+    assert len(got) == 6
+    for f in got:
+        ref = emulate(net, plan, frames[f.index])
+        want = overlay_frame(frames[f.index], ref.decisions, ref.float_decisions)
+        assert np.array_equal(f.rgb, want)
+        only_fixed = (ref.decisions == 1) & (ref.float_decisions == 0)
+        only_float = (ref.decisions == 0) & (ref.float_decisions == 1)
+        assert np.all(f.rgb[only_fixed] == ONLY_FIXED) and np.all(f.rgb[only_float] == ONLY_FLOAT)
+    assert not list(tmp_path.glob(".*.tmp"))
+    mp4 = tmp_path / "overlay.mp4"  # H.264 needs even sizes: 95 x 63 is padded
+    odd = [np.ascontiguousarray(f[:63, :95]) for f in frames[:3]]
+    for i, f in enumerate(odd):
+        Image.fromarray(f).save(tmp_path / f"o{i}.png")
+    analyse_footage(net, plan, str(tmp_path / "o*.png"), overlay=mp4)
+    clip = open_footage(mp4)
+    assert len(clip.read()) == 3 and (clip.info.width, clip.info.height) == (96, 64)

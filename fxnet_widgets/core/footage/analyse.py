@@ -31,6 +31,7 @@ from ..fileio import atomic_write_json, atomic_writer
 from ..network import Network
 from ..plan import Plan
 from .lookup import LOOKUP_EVENTS, ColourLookup, compile_float_lookup, compile_lookup
+from .overlay import OverlayWriter, overlay_frame
 from .reader import Footage, Frame, open_footage
 
 __all__ = ["FootageAnalysis", "analyse_footage", "frame_decisions", "WORST_FRAMES"]
@@ -290,6 +291,7 @@ def analyse_footage(
     on_frame: Callable[[int, dict[str, Any]], None] | None = None,
     source_info: dict[str, Any] | None = None,
     labels: Footage | str | os.PathLike[str] | None = None,
+    overlay: str | os.PathLike[str] | None = None,
 ) -> FootageAnalysis:
     """Analyse every frame of ``source``: a path for :func:`~.reader.open_footage`, a :class:`Footage`,
     or a list of decoded :class:`~.reader.Frame` (then ``source_info`` is the result's ``source``).
@@ -311,6 +313,9 @@ def analyse_footage(
         Label masks, one per frame (same frame indices: a video or an image folder, read with the
         same ``frames`` range): a pixel is positive (class 1) where the mask's first channel is at
         least 128. Each record then has ``labelled_positive``, ``accuracy_fixed`` and ``accuracy_float``.
+    overlay
+        Also write a video (``.mkv`` lossless or ``.mp4``) of the frames with the disagreement
+        marked and the fixed mask outlined (:mod:`.overlay`).
     """
     if network.n_in != 3 or network.input_bits != 8:
         raise ValueError(f"network must take 3 inputs of 8 bits (RGB) for footage, not {network.n_in} inputs of "
@@ -342,27 +347,41 @@ def analyse_footage(
     it = iter(held) if held is not None else iter(clip) if clip is not None else iter(())
     masks = _Masks(labels if isinstance(labels, Footage) else open_footage(labels, frames)) if labels is not None \
         else None  # fmt: skip
-    while True:
-        if _is_cancelled(cancel):
-            cancelled = True
-            break
-        ta = time.perf_counter()
-        try:
-            frame = next(it)
-        except StopIteration:
-            break
-        tb = time.perf_counter()
-        rec = {"index": frame.index, "time_s": round(float(frame.time_s), 6), **_frame_record(fixed, flt, frame.rgb)}
-        if masks is not None:
-            rec.update(_accuracy(fixed, flt, frame.rgb, masks.mask(frame.index, frame.rgb.shape[:2])))
-        records.append(rec)
-        tc = time.perf_counter()
-        decode += tb - ta
-        analyse += tc - tb
-        if on_frame is not None:
-            on_frame(len(records) - 1, rec)
-        if progress is not None:
-            progress(len(records), max(total, len(records)))
+    writer: OverlayWriter | None = None
+    try:
+        while True:
+            if _is_cancelled(cancel):
+                cancelled = True
+                break
+            ta = time.perf_counter()
+            try:
+                frame = next(it)
+            except StopIteration:
+                break
+            tb = time.perf_counter()
+            rec = {"index": frame.index, "time_s": round(float(frame.time_s), 6),
+                   **_frame_record(fixed, flt, frame.rgb)}  # fmt: skip
+            if masks is not None:
+                rec.update(_accuracy(fixed, flt, frame.rgb, masks.mask(frame.index, frame.rgb.shape[:2])))
+            if overlay is not None:
+                if writer is None:
+                    rate = clip.info.rate if clip is not None else (source_info or {}).get("rate")
+                    writer = OverlayWriter(overlay, frame.rgb.shape[1], frame.rgb.shape[0], rate)
+                writer.write(overlay_frame(frame.rgb, *frame_decisions(fixed, flt, frame.rgb)))
+            records.append(rec)
+            tc = time.perf_counter()
+            decode += tb - ta
+            analyse += tc - tb
+            if on_frame is not None:
+                on_frame(len(records) - 1, rec)
+            if progress is not None:
+                progress(len(records), max(total, len(records)))
+    except BaseException:
+        if writer is not None:
+            writer.close(keep=False)
+        raise
+    if writer is not None:
+        writer.close()
     if progress is not None and total and len(records) < total and not cancelled:
         progress(len(records), len(records))  # fewer frames than announced: finish the bar
     timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse}
