@@ -73,3 +73,23 @@ def test_footage_errors_are_one_line(clip, tmp_path):
     code, out, err = run("footage", f"{ASSETS}/network.json", f"{ASSETS}/plan.json", clip, "-o", tmp_path / "r.json",
                          "--frames", "5:2")  # fmt: skip
     assert code == 2 and err == "fxnet: frames stop must be at least the start 5, not 2\n"
+
+
+def test_footage_overlay_and_labels(clip, tmp_path):
+    masks = tmp_path / "masks"
+    masks.mkdir()
+    for i in range(10):
+        save_png(masks / f"m{i}.png", np.zeros((40, 64), np.uint8))  # nothing is ripe
+    code, out, err = run("footage", f"{ASSETS}/network.json", f"{ASSETS}/plan.json", clip, "-o", tmp_path / "r.json",
+                         "--labels", masks, "--overlay", tmp_path / "o.mkv", "--quiet")  # fmt: skip
+    assert code == 0, err
+    doc = json.loads((tmp_path / "r.json").read_text())
+    for r in doc["frames"]:  # an all-negative mask: accuracy = share of pixels called negative
+        assert r["accuracy_fixed"] == round(1 - r["positive_fixed"] / r["pixels"], 6)
+    assert "accuracy on the labels" in out and out.rstrip().endswith(f"and {tmp_path / 'o.mkv'}")
+    from fxnet_widgets.core.footage import open_footage
+
+    assert len(open_footage(tmp_path / "o.mkv").read()) == 10
+    code, out, err = run("footage", f"{ASSETS}/network.json", f"{ASSETS}/plan.json", clip, "-o", tmp_path / "r.json",
+                         "--overlay", tmp_path / "o.avi")  # fmt: skip
+    assert code == 2 and err.strip().endswith("the overlay file name must end in .mkv or .mp4")
