@@ -83,6 +83,7 @@ _LAZY: dict[str, str] = {
     "Footage": "fxnet_widgets.core.footage",
     "FootageAnalysis": "fxnet_widgets.core.footage",
     "analyse_footage": "fxnet_widgets.core.footage",
+    "analyse_footage_split": "fxnet_widgets.core.footage.parallel",
     "compile_float_lookup": "fxnet_widgets.core.footage",
     "compile_lookup": "fxnet_widgets.core.footage",
     "open_footage": "fxnet_widgets.core.footage",

@@ -93,3 +93,14 @@ def test_footage_overlay_and_labels(clip, tmp_path):
     code, out, err = run("footage", f"{ASSETS}/network.json", f"{ASSETS}/plan.json", clip, "-o", tmp_path / "r.json",
                          "--overlay", tmp_path / "o.avi")  # fmt: skip
     assert code == 2 and err.strip().endswith("the overlay file name must end in .mkv or .mp4")
+
+
+def test_footage_split_over_workers_matches(clip, tmp_path):
+    args = ["footage", f"{ASSETS}/network.json", f"{ASSETS}/plan.json", clip, "--quiet"]
+    assert run(*args, "-o", tmp_path / "one.json")[0] == 0
+    code, out, err = run(*args, "-o", tmp_path / "split.json", "--workers", "0")
+    assert code == 0, err
+    one, split = (json.loads((tmp_path / n).read_text()) for n in ("one.json", "split.json"))
+    assert one["frames"] == split["frames"] and one["totals"] == split["totals"]
+    code, out, err = run(*args, "-o", tmp_path / "x.json", "--workers", "1", "--dask", "127.0.0.1:1")
+    assert code == 2 and err == "fxnet: give --workers or --dask, not both\n"

@@ -455,3 +455,20 @@ def test_overlay_video_marks_the_disagreement(demo_clip, tmp_path):
     analyse_footage(net, plan, str(tmp_path / "o*.png"), overlay=mp4)
     clip = open_footage(mp4)
     assert len(clip.read()) == 3 and (clip.info.width, clip.info.height) == (96, 64)
+
+
+def test_split_over_workers_gives_the_same_records(demo_clip):
+    from fxnet_widgets.core.analysis.search import SerialExecutor
+    from fxnet_widgets.core.footage.parallel import analyse_footage_split, split_range
+
+    assert split_range(0, 10, 3, 2) == ["0:4:3", "6:10:3"] and split_range(2, 3, 1, 5) == ["2:3:1"]
+    net = Network.load("assets/network.json")
+    plan = Plan.load("assets/plan.json", net).replace(acc_bits=13, out_bits=5)
+    whole = analyse_footage(net, plan, demo_clip, frames="1:12:2")
+    serial = analyse_footage_split(net, plan, demo_clip, SerialExecutor(), frames="1:12:2", parts=3)
+    assert serial.frames == whole.frames and serial.totals == whole.totals
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+        with distributed.Client(cluster) as client:
+            parts = analyse_footage_split(net, plan, demo_clip, client, frames="1:12:2")
+    assert parts.frames == whole.frames and parts.to_dict() == whole.to_dict()
