@@ -7,15 +7,19 @@ frame with one gather per pixel. :func:`compile_lookup` builds that table:
 * colour index ``c = u_0 << (b*(n-1)) | ... | u_(n-1)`` (RGB: ``r << 16 | g << 8 | b``),
   for any network whose inputs total at most 24 bits;
 * the table is made by the kernel's own steps: exact integer sums (layer 1 from a
-  product table of the low inputs plus a per-chunk constant; later layers as a matrix
-  product, in float64 only where every partial sum is proven below 2^53, so exact),
-  then :func:`~fxnet_widgets.core.kernel.post_accumulate` (steps 4-7, the function
-  :func:`~fxnet_widgets.core.kernel.emulate` uses), then the decision of step 8;
-  tests compare it with ``emulate`` on every colour of small networks;
-* it is built in chunks of :data:`CHUNK_COLOURS` colours: the working memory is about
-  ``64 bytes x CHUNK_COLOURS x widest layer`` (8 MB per neuron of the widest layer), on top
-  of the tables themselves (2^24 bytes of decisions, 2^21 bytes bit-packed, and the event
-  table: 2^24 x 1, 2, 4 or 8 bytes);
+  product table of the low inputs plus a per-chunk constant; later layers as exact
+  integer sums), then :func:`~fxnet_widgets.core.kernel.post_accumulate` (steps 4-7, the
+  function :func:`~fxnet_widgets.core.kernel.emulate` uses) applied once to every integer
+  of each neuron's sum interval and read per colour, then the decision of step 8 (see
+  :mod:`._build`); tests compare it with ``emulate`` on every colour of small networks;
+* memory is bounded: besides the tables kept (2^24 bytes of decisions, 2^21 bytes
+  bit-packed, the event table of 2^24 x 1, 2, 4 or 8 bytes, and with ``codes`` 2^24 x n_out
+  x 2 or 4 bytes), the build holds the event table once more in its uncompacted form, 5 bytes
+  per integer of each neuron's sum interval (at most :data:`~._build.DOMAIN_MAX` = 2^22
+  integers, 20 MB; wider intervals are evaluated directly), and, on the numpy path, chunks of
+  :data:`CHUNK_COLOURS` colours (about 64 bytes x 2^17 x the widest layer: 8 MB per neuron).
+  Measured for the 3-3-1 demo network: 76 MiB at the peak, tables included
+  (``benchmarks/bench_footage.py``, tracemalloc);
 * results are cached by value (network digest, plan, options).
 
 Per colour it keeps the decision (class index), optionally the output codes, and a
