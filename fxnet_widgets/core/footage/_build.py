@@ -111,14 +111,19 @@ def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bo
     kern = _compiled.kernels() if USE_COMPILED and all(d is not None for dl in domains for d in dl) else None
     if kern is not None:  # one compiled loop over the colours, same integers, same tables
         flat = _flatten(intnet, domains)
-        ev_full = np.zeros(size if keep_events else 1, dtype=_uint_for(max(1, len(slots))))
+        # event bits only for the events each neuron's sum interval can reach (a superset of those that happen)
+        possible = [int(np.bitwise_or.reduce(d[2])) if d is not None and d[2].size else 0 for dl in domains for d in dl]
+        reach = [k for k in range(len(slots)) if possible[k // 3] >> (k % 3) & 1]
+        pos = np.zeros(len(slots), dtype=np.int64)
+        pos[reach] = np.arange(len(reach))
+        ev_full = np.zeros(size if keep_events else 1, dtype=_uint_for(max(1, len(reach))))
         seen_arr = np.zeros(len(slots) // 3, dtype=np.uint8)
         dummy = np.zeros((1, n_out), dtype=np.int64)
         low_t, const_t = np.ascontiguousarray(low_sum.T), np.ascontiguousarray(const.T)
         for h0 in range(0, n_chunks, group):
             h1 = min(n_chunks, h0 + group)
             kern.build(low_t, const_t, h0, h1, *flat, intnet.threshold_code or 0, decisions, keep_codes,
-                       codes_all if codes_all is not None else dummy, keep_events, ev_full, seen_arr)  # fmt: skip
+                       codes_all if codes_all is not None else dummy, keep_events, ev_full, seen_arr, pos)  # fmt: skip
             if progress is not None:
                 progress(h1 * low_size, size)
         seen_bits = [int(v) for v in seen_arr.tolist()]
@@ -158,8 +163,11 @@ def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bo
         active = np.flatnonzero(seen)
         ev_slots = tuple(slots[i] for i in active)
         if kern is not None:
-            events = np.zeros(size, dtype=_uint_for(max(1, len(active))))
-            kern.compact(ev_full, active.astype(np.int64), events)
+            if len(active) == len(reach):  # every reachable event happens: the bits are already compact
+                events = ev_full
+            else:  # drop the bits of events no colour reaches (renumbered within ev_full's bits)
+                events = np.zeros(size, dtype=_uint_for(max(1, len(active))))
+                kern.compact(ev_full, pos[active], events)
         else:
             assert events is not None
             events = _compact(events, active)

@@ -110,7 +110,8 @@ class _Kernels:
                   biases: np.ndarray, sizes: np.ndarray, woff: np.ndarray, goff: np.ndarray, lo: np.ndarray,
                   toff: np.ndarray, tab_codes: np.ndarray, tab_bits: np.ndarray, thr: int,
                   decisions: np.ndarray, keep_codes: bool, codes_out: np.ndarray, keep_events: bool,
-                  events: np.ndarray, seen: np.ndarray) -> None:  # pragma: no cover
+                  events: np.ndarray, seen: np.ndarray, pos: np.ndarray) -> None:  # pragma: no cover
+            # pos[3 g + b]: the bit of event b of neuron g in ``events`` (only events its interval can reach)
             # the integer network per colour: exact int64 sums (step 3), steps 4-7 read from the
             # per-neuron tables that post_accumulate made over each sum interval, step 8
             n_layers = sizes.shape[0]
@@ -130,8 +131,10 @@ class _Kernels:
                         cur[j] = tab_codes[toff[j] + d]
                         e = tab_bits[toff[j] + d]
                         if e:
-                            ev |= np.uint64(e) << np.uint64(3 * j)
                             seen[j] |= e
+                            for b in range(3):
+                                if (e >> b) & 1:
+                                    ev |= np.uint64(1) << np.uint64(pos[3 * j + b])
                     n_prev = n1
                     for k in range(1, n_layers):
                         nk = sizes[k]
@@ -145,8 +148,10 @@ class _Kernels:
                             nxt[j] = tab_codes[toff[g] + d]
                             e = tab_bits[toff[g] + d]
                             if e:
-                                ev |= np.uint64(e) << np.uint64(3 * g)
                                 seen[g] |= e
+                                for b in range(3):
+                                    if (e >> b) & 1:
+                                        ev |= np.uint64(1) << np.uint64(pos[3 * g + b])
                         for j in range(nk):
                             cur[j] = nxt[j]
                         n_prev = nk

@@ -14,7 +14,8 @@ frame with one gather per pixel. :func:`compile_lookup` builds that table:
   :mod:`._build`); tests compare it with ``emulate`` on every colour of small networks;
 * memory is bounded: besides the tables kept (2^24 bytes of decisions, 2^21 bytes
   bit-packed, the event table of 2^24 x 1, 2, 4 or 8 bytes, and with ``codes`` 2^24 x n_out
-  x 2 or 4 bytes), the build holds the event table once more in its uncompacted form, 5 bytes
+  x 2 or 4 bytes), the build may hold the event table once more (when some reachable event never
+  happens and its bit is dropped), 5 bytes
   per integer of each neuron's sum interval (at most :data:`~._build.DOMAIN_MAX` = 2^22
   integers, 20 MB; wider intervals are evaluated directly), and, on the numpy path, chunks of
   :data:`CHUNK_COLOURS` colours (about 64 bytes x 2^17 x the widest layer: 8 MB per neuron).
