@@ -19,7 +19,7 @@ frame with one gather per pixel. :func:`compile_lookup` builds that table:
   per integer of each neuron's sum interval (at most :data:`~._build.DOMAIN_MAX` = 2^22
   integers, 20 MB; wider intervals are evaluated directly), and, on the numpy path, chunks of
   :data:`CHUNK_COLOURS` colours (about 64 bytes x 2^17 x the widest layer: 8 MB per neuron).
-  Measured for the 3-3-1 demo network: 76 MiB at the peak, tables included
+  Measured for the 3-3-1 demo network: 44 MiB at the peak, tables included
   (``benchmarks/bench_footage.py``, tracemalloc);
 * results are cached by value (network digest, plan, options).
 
