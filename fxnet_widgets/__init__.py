@@ -83,6 +83,16 @@ _LAZY: dict[str, str] = {
     "Session": "fxnet_widgets.widgets.session",
     "StatusLinePanel": "fxnet_widgets.widgets.status",
     "SweepProgressBar": "fxnet_widgets.widgets.status",
+    "FootagePanel": "fxnet_widgets.widgets.footage",
+    "ColourLookup": "fxnet_widgets.core.footage",
+    "Footage": "fxnet_widgets.core.footage",
+    "FootageAnalysis": "fxnet_widgets.core.footage",
+    "analyse_footage": "fxnet_widgets.core.footage",
+    "analyse_footage_split": "fxnet_widgets.core.footage.parallel",
+    "compile_float_lookup": "fxnet_widgets.core.footage",
+    "compile_lookup": "fxnet_widgets.core.footage",
+    "open_footage": "fxnet_widgets.core.footage",
+    "write_demo_clip": "fxnet_widgets.core.footage",
 }
 
 __all__ = [

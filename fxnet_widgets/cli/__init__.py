@@ -33,6 +33,7 @@ SUBCOMMANDS = [
     "report",
     "lab",
     "publish",
+    "footage",
 ]
 
 

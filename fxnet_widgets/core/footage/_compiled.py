@@ -1,0 +1,198 @@
+"""Fused loops over 8-bit RGB frames (numba), compiled on first use.
+
+Compiled code is cached on disk by numba (``cache=True``: beside this file, or in the
+user's cache directory when the package folder is read-only), so only the first run on a
+machine pays for compiling.
+
+Each loop reads a pixel's three codes, forms ``r << 16 | g << 8 | b`` and reads
+the tables at that index: no index array, no second pass. The results are the
+same gathers as the numpy path (tests compare them), only fused.
+"""
+
+from __future__ import annotations
+
+import threading
+from typing import Any
+
+import numpy as np
+
+__all__ = ["kernels"]
+
+_LOCK = threading.Lock()
+_KERNELS: Any = None
+
+
+class _Kernels:
+    def __init__(self) -> None:
+        import numba
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def decide_packed(rgb: np.ndarray, packed: np.ndarray, out: np.ndarray) -> None:  # pragma: no cover
+            for i in range(rgb.shape[0]):
+                c = (np.int32(rgb[i, 0]) << 16) | (np.int32(rgb[i, 1]) << 8) | np.int32(rgb[i, 2])
+                out[i] = (packed[c >> 3] >> (c & 7)) & 1
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def frame_stats(rgb: np.ndarray, fixed: np.ndarray, flt: np.ndarray, events: np.ndarray, n_slots: int,
+                        slot_counts: np.ndarray, sums: np.ndarray) -> tuple[int, int, int]:  # pragma: no cover
+            # fixed/flt: byte tables of class indices; counts positives (class 1) and disagreements
+            pos_fx = 0
+            pos_fl = 0
+            differ = 0
+            s0 = 0
+            s1 = 0
+            s2 = 0
+            for i in range(rgb.shape[0]):
+                r = np.int32(rgb[i, 0])
+                g = np.int32(rgb[i, 1])
+                b = np.int32(rgb[i, 2])
+                s0 += r
+                s1 += g
+                s2 += b
+                c = (r << 16) | (g << 8) | b
+                a = fixed[c]
+                f = flt[c]
+                pos_fx += a == 1
+                pos_fl += f == 1
+                differ += a != f
+                if n_slots:
+                    e = events[c]
+                    if e:
+                        for k in range(n_slots):
+                            if (e >> k) & 1:
+                                slot_counts[k] += 1
+            sums[0] += s0
+            sums[1] += s1
+            sums[2] += s2
+            return pos_fx, pos_fl, differ
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def both(rgb: np.ndarray, fixed: np.ndarray, flt: np.ndarray, out_fx: np.ndarray,
+                 out_fl: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            for i in range(rgb.shape[0]):
+                c = (np.int32(rgb[i, 0]) << 16) | (np.int32(rgb[i, 1]) << 8) | np.int32(rgb[i, 2])
+                out_fx[i] = fixed[c]
+                out_fl[i] = flt[c]
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def frame_stats_combined(rgb: np.ndarray, table: np.ndarray, n_slots: int, slot_counts: np.ndarray,
+                                 sums: np.ndarray) -> tuple[int, int, int]:  # pragma: no cover
+            # table: bit 0 fixed decision, bit 1 float decision, bits 2.. the event slots: one read per pixel
+            pos_fx = 0
+            pos_fl = 0
+            differ = 0
+            s0 = 0
+            s1 = 0
+            s2 = 0
+            for i in range(rgb.shape[0]):
+                r = np.int32(rgb[i, 0])
+                g = np.int32(rgb[i, 1])
+                b = np.int32(rgb[i, 2])
+                s0 += r
+                s1 += g
+                s2 += b
+                e = table[(r << 16) | (g << 8) | b]
+                pos_fx += e & 1
+                pos_fl += (e >> 1) & 1
+                differ += (e ^ (e >> 1)) & 1
+                e >>= 2
+                if e:
+                    for k in range(n_slots):
+                        if (e >> k) & 1:
+                            slot_counts[k] += 1
+            sums[0] += s0
+            sums[1] += s1
+            sums[2] += s2
+            return pos_fx, pos_fl, differ
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def build(low_sum: np.ndarray, const: np.ndarray, h0: int, h1: int, weights: np.ndarray,
+                  biases: np.ndarray, sizes: np.ndarray, woff: np.ndarray, goff: np.ndarray, lo: np.ndarray,
+                  toff: np.ndarray, tab_codes: np.ndarray, tab_bits: np.ndarray, thr: int,
+                  decisions: np.ndarray, keep_codes: bool, codes_out: np.ndarray, keep_events: bool,
+                  events: np.ndarray, seen: np.ndarray, pos: np.ndarray) -> None:  # pragma: no cover
+            # pos[3 g + b]: the bit of event b of neuron g in ``events`` (only events its interval can reach)
+            # the integer network per colour: exact int64 sums (step 3), steps 4-7 read from the
+            # per-neuron tables that post_accumulate made over each sum interval, step 8
+            n_layers = sizes.shape[0]
+            width = 1
+            for k in range(n_layers):
+                width = max(width, sizes[k])
+            cur = np.zeros(width, dtype=np.int64)
+            nxt = np.zeros(width, dtype=np.int64)
+            n_low = low_sum.shape[0]  # low_sum: (colours of the low inputs, n1), const: (combinations, n1)
+            n1 = sizes[0]
+            for h in range(h0, h1):
+                for l in range(n_low):
+                    idx = h * n_low + l
+                    ev = np.uint64(0)
+                    for j in range(n1):
+                        d = low_sum[l, j] + const[h, j] - lo[j]
+                        cur[j] = tab_codes[toff[j] + d]
+                        e = tab_bits[toff[j] + d]
+                        if e:
+                            seen[j] |= e
+                            for b in range(3):
+                                if (e >> b) & 1:
+                                    ev |= np.uint64(1) << np.uint64(pos[3 * j + b])
+                    n_prev = n1
+                    for k in range(1, n_layers):
+                        nk = sizes[k]
+                        for j in range(nk):
+                            acc = biases[goff[k] + j]
+                            base = woff[k] + j * n_prev
+                            for i in range(n_prev):
+                                acc += weights[base + i] * cur[i]
+                            g = goff[k] + j
+                            d = acc - lo[g]
+                            nxt[j] = tab_codes[toff[g] + d]
+                            e = tab_bits[toff[g] + d]
+                            if e:
+                                seen[g] |= e
+                                for b in range(3):
+                                    if (e >> b) & 1:
+                                        ev |= np.uint64(1) << np.uint64(pos[3 * g + b])
+                        for j in range(nk):
+                            cur[j] = nxt[j]
+                        n_prev = nk
+                    if n_prev == 1:
+                        decisions[idx] = 1 if cur[0] >= thr else 0
+                    else:
+                        best = 0
+                        for j in range(1, n_prev):
+                            if cur[j] > cur[best]:
+                                best = j
+                        decisions[idx] = best
+                    if keep_codes:
+                        for j in range(n_prev):
+                            codes_out[idx, j] = cur[j]
+                    if keep_events:
+                        events[idx] = ev
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def compact(events: np.ndarray, active: np.ndarray, out: np.ndarray) -> None:  # pragma: no cover
+            for i in range(events.shape[0]):
+                e = np.uint64(events[i])
+                o = np.uint64(0)
+                for k in range(active.shape[0]):
+                    o |= ((e >> np.uint64(active[k])) & np.uint64(1)) << np.uint64(k)
+                out[i] = o
+
+        self.build = build
+        self.compact = compact
+        self.frame_stats_combined = frame_stats_combined
+        self.decide_packed = decide_packed
+        self.frame_stats = frame_stats
+        self.both = both
+
+
+def kernels() -> Any:
+    """The compiled loops, or None when numba is not available."""
+    global _KERNELS
+    with _LOCK:
+        if _KERNELS is None:
+            try:
+                _KERNELS = _Kernels()
+            except ImportError:  # pragma: no cover - numba is a dependency
+                _KERNELS = False
+    return _KERNELS or None

@@ -1,0 +1,237 @@
+"""A clip under the explorer's plan: a per-frame timeline and a frame scrubber.
+
+:class:`FootagePanel` holds the decoded frames of a short clip, runs
+:func:`~fxnet_widgets.core.footage.analyse_footage` (the core; colour look-ups cached by
+value) for the explorer's plan in a background thread, and draws what it returns: a bqplot
+timeline of the pixels that differ from float and of the events per frame (click a point to
+jump there), a frame slider with a play button, the frame and the fixed-vs-float difference.
+When the explorer's plan changes the timeline is recomputed (progress shown); until it is
+done the panel says that what it shows belongs to another plan.
+"""
+
+from __future__ import annotations
+
+import html
+import os
+import threading
+from typing import Any
+
+import bqplot as bq
+import ipywidgets as w
+import numpy as np
+
+from ..core.footage import FootageAnalysis, analyse_footage, compile_float_lookup, compile_lookup, open_footage
+from ..core.footage.analyse import frame_decisions
+from ..core.plan import Plan
+from ..render.raster import overlay_png, png_bytes
+from .session import Session
+
+__all__ = ["FootagePanel", "MAX_HELD_BYTES"]
+
+#: the most decoded frame bytes a panel holds in memory (use a frame range or stride for more)
+MAX_HELD_BYTES = 512 * 2**20
+
+
+class FootagePanel(w.VBox):
+    """Timeline of a clip under the explorer's plan, with a frame scrubber.
+
+    Parameters
+    ----------
+    explorer
+        An :class:`~fxnet_widgets.widgets.explorer.Explorer` or a :class:`Session`.
+    source
+        A video file, image folder or glob pattern (see :func:`~fxnet_widgets.core.footage.open_footage`).
+    frames
+        ``"A:B:S"`` frame range and stride.
+    background
+        Recompute in a thread (default); False computes at once (tests, scripts).
+
+    Attributes
+    ----------
+    result : FootageAnalysis or None
+        The timeline on screen; ``result.plan`` is the plan it was computed for.
+    slider, play : the current frame (linked with ``jslink``)
+    timeline : bqplot.Figure with ``differ_line``, ``events_line``, ``points`` (click to jump), ``cursor``
+    frame_image, diff_image : ipywidgets.Image (PNG of the frame; the frame dimmed, disagreement coloured)
+    progress : ipywidgets.IntProgress; status : ipywidgets.HTML
+    """
+
+    def __init__(self, explorer: Any, source: str | os.PathLike[str], frames: str | None = None, *,
+                 background: bool = True, width: int = 320, **kwargs: Any) -> None:  # fmt: skip
+        session = getattr(explorer, "session", explorer)
+        if not isinstance(session, Session):
+            raise TypeError(f"explorer must be an Explorer or a Session, not {type(explorer).__name__}")
+        self.session = session
+        self.background = background
+        clip = open_footage(source, frames)
+        info = clip.info
+        per_frame = info.width * info.height * 3
+        if info.frames is not None and per_frame * info.frames > MAX_HELD_BYTES * max(1, clip.frames.step):
+            raise ValueError(f"{info.source}: clip must hold at most {MAX_HELD_BYTES // per_frame} frames in memory "
+                             f"for the panel, not about {info.frames}; give a frame range or stride")  # fmt: skip
+        self.frames = clip.read()
+        self.info = info
+        self.result: FootageAnalysis | None = None
+        self._thread: threading.Thread | None = None
+        self._cancel = threading.Event()
+        self._lock = threading.Lock()
+        n = len(self.frames)
+        self.slider = w.IntSlider(0, 0, max(0, n - 1), description="frame", continuous_update=True,
+                                  layout=w.Layout(width="420px"))  # fmt: skip
+        rate = info.rate or 10.0
+        self.play = w.Play(value=0, min=0, max=max(0, n - 1), interval=max(20, int(1000 / rate)), description="play")
+        self._link = w.jslink((self.play, "value"), (self.slider, "value"))
+        h = max(1, round(width * info.height / info.width))
+        lay = {"width": f"{width}px", "height": f"{h}px"}
+        self.frame_image = w.Image(format="png", layout=w.Layout(**lay))
+        self.diff_image = w.Image(format="png", layout=w.Layout(**lay))
+        self.caption = w.HTML()
+        self.status = w.HTML()
+        self.progress = w.IntProgress(value=0, min=0, max=max(1, n), description="timeline",
+                                      layout=w.Layout(width="420px"))  # fmt: skip
+        # the timeline
+        self.xs, self.ys = bq.LinearScale(), bq.LinearScale(min=0.0)
+        sc = {"x": self.xs, "y": self.ys}
+        x = np.arange(n, dtype=np.float32)
+        zeros = np.zeros(n, dtype=np.float32)
+        self.differ_line = bq.Lines(x=x, y=zeros, scales=sc, colors=["#d62d7b"], labels=["pixels differing"],
+                                    display_legend=True)  # fmt: skip
+        self.events_line = bq.Lines(x=x, y=zeros, scales=sc, colors=["#1aaabe"], labels=["events"],
+                                    display_legend=True, line_style="dashed")  # fmt: skip
+        self.points = bq.Scatter(x=x, y=zeros, scales=sc, colors=["#d62d7b"], default_size=24,
+                                 interactions={"click": "select"})  # fmt: skip
+        self.points.on_element_click(self._clicked)
+        self.cursor = bq.Lines(x=np.zeros(2, np.float32), y=np.array([0, 1], np.float32), scales=sc,
+                               colors=["#888888"])  # fmt: skip
+        self.timeline = bq.Figure(
+            marks=[self.differ_line, self.events_line, self.points, self.cursor],
+            axes=[bq.Axis(scale=self.xs, label="frame"), bq.Axis(scale=self.ys, side="left",
+                                                                   label="pixels", tick_format="~s")],
+            title="per frame: pixels differing from float, events", legend_location="top-left",
+            fig_margin={"top": 40, "bottom": 40, "left": 60, "right": 10},
+            layout=w.Layout(width="640px", height="260px"),
+        )  # fmt: skip
+        cells = [w.VBox([w.HTML("<b>frame</b>"), self.frame_image]),
+                 w.VBox([w.HTML("<b>where fixed point and float differ</b>"), self.diff_image])]  # fmt: skip
+        wrap = w.Layout(flex_flow="row wrap", align_items="flex-start")
+        super().__init__([self.status, self.timeline, w.HBox([self.play, self.slider]), self.progress,
+                          w.HBox(cells, layout=wrap), self.caption], **kwargs)  # fmt: skip
+        self.slider.observe(lambda _: self._show_frame(), "value")
+        session.observe(lambda _: self.recompute(), "plan")
+        self.recompute()
+
+    # -- computing (in the core, possibly in a thread) -----------------------------------
+    def recompute(self) -> None:
+        """Start the timeline for the explorer's current plan (the previous run is cancelled)."""
+        plan = self.session.plan
+        with self._lock:
+            self._cancel.set()
+            self._cancel = cancel = threading.Event()
+        self.progress.value = 0
+        self._say()
+        if not self.background:
+            self._run(plan, cancel)
+            return
+        self._thread = threading.Thread(target=self._run, args=(plan, cancel), daemon=True, name="fxnet-footage")
+        self._thread.start()
+
+    def wait(self, timeout: float | None = None) -> bool:
+        """Wait for the background run; True when it has finished."""
+        th = self._thread
+        if th is not None:
+            th.join(timeout)
+            return not th.is_alive()
+        return True
+
+    def _run(self, plan: Plan, cancel: threading.Event) -> None:
+        try:
+            result = analyse_footage(self.session.network, plan, self.frames, cancel=cancel,
+                                     progress=lambda d, t: self._progress(d, cancel),
+                                     source_info=self.info.to_dict())  # fmt: skip
+        except Exception as exc:  # shown, never only logged
+            self.status.value = f"<span style='color:#b00'>timeline failed: {html.escape(str(exc))}</span>"
+            return
+        if result.cancelled or cancel.is_set():
+            return
+        with self._lock:
+            if cancel is not self._cancel:
+                return
+            self.result = result
+        self._draw()
+
+    def _progress(self, done: int, cancel: threading.Event) -> None:
+        if cancel is self._cancel:
+            self.progress.value = done
+
+    # -- drawing ---------------------------------------------------------------------
+    @property
+    def stale(self) -> bool:
+        """True when the timeline on screen is for another plan than the explorer's."""
+        return self.result is None or self.result.plan != self.session.plan
+
+    def _say(self) -> None:
+        if self.result is None:
+            self.status.value = "<i>computing the timeline for the explorer's plan...</i>"
+        elif self.stale:
+            self.status.value = ("<span style='color:#b05000'><b>stale:</b> the timeline and the frame are for an "
+                                 "earlier plan, not the explorer's; recomputing...</span>")  # fmt: skip
+        else:
+            t = self.result.totals
+            self.status.value = (f"timeline for the explorer's plan: {t['frames']} frames, {t['differ']} pixels "
+                                 f"differ from float, events {sum(t['events'].values())}")  # fmt: skip
+
+    def _draw(self) -> None:
+        r = self.result
+        assert r is not None
+        x = np.arange(len(r.frames), dtype=np.float32)  # position in the clip
+        differ = r.series("differ").astype(np.float32)
+        events = r.series("events").astype(np.float32)
+        top = float(max(1.0, differ.max(initial=0), events.max(initial=0)))
+        with self.timeline.hold_sync():
+            self.differ_line.x, self.differ_line.y = x, differ
+            self.events_line.x, self.events_line.y = x, events
+            self.points.x, self.points.y = x, differ
+            self.ys.max = top * 1.05
+            self.cursor.y = np.array([0, top * 1.05], np.float32)
+        self.progress.value = self.progress.max
+        self._say()
+        self._show_frame()
+
+    def _clicked(self, _mark: Any, event: dict[str, Any]) -> None:
+        i = int(event.get("data", {}).get("index", 0))
+        self.slider.value = max(0, min(i, self.slider.max))
+
+    def _show_frame(self) -> None:
+        if not self.frames:
+            return
+        i = int(self.slider.value)
+        f = self.frames[i]
+        self.cursor.x = np.array([i, i], np.float32)
+        self.frame_image.value = png_bytes(f.rgb)
+        r = self.result
+        if r is None:
+            return
+        fx, fl = self.frame_difference(i)
+        self.diff_image.value = overlay_png(f.rgb, fx, fl, max(2, r.network.n_out), rings=True)
+        rec = r.frames[i]
+        ev = sum(sum(sum(row) for row in v) for v in rec["events"].values())
+        plan_note = " (for an earlier plan)" if self.stale else ""
+        self.caption.value = (f"frame {rec['index']} at {rec['time_s']:.3f} s: {rec['differ']} of {rec['pixels']} "
+                              f"pixels differ from float, {ev} events{plan_note}")  # fmt: skip
+
+    def frame_difference(self, position: int) -> tuple[np.ndarray, np.ndarray]:
+        """Fixed-point and float decisions of the frame at ``position``, under the timeline's plan."""
+        r = self.result
+        if r is None:
+            raise ValueError("the timeline is not computed yet (call wait())")
+        return frame_decisions(compile_lookup(r.network, r.plan), compile_float_lookup(r.network),
+                               self.frames[position].rgb)  # fmt: skip
+
+    def summary(self) -> str:
+        """Deterministic text of what the panel shows."""
+        if self.result is None:
+            return "footage: timeline not computed yet"
+        i = int(self.slider.value)
+        rec = self.result.frames[i]
+        return (self.result.summary() + f"\n  current frame {rec['index']}: {rec['differ']} pixels differ"
+                + ("\n  stale: computed for another plan than the explorer's" if self.stale else ""))
