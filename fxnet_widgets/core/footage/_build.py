@@ -61,7 +61,7 @@ def _layer1_parts(intnet: IntegerNetwork, bits: int, n_in: int) -> tuple[int, np
 
 
 def _exact_in_float(layer: Any) -> bool:
-    umax = max(abs(layer.in_min), abs(layer.in_max))
+    umax = max(abs(layer.inputs.lo), abs(layer.inputs.hi))
     bound = int(np.abs(layer.q_w).sum(axis=1).max()) * umax + int(np.abs(layer.q_b).max())
     return bound < _EXACT_FLOAT
 
