@@ -221,7 +221,9 @@ def synthesize(
             fmax, use = figures["fmax_mhz"], figures["utilization"]
         meets = None if fmax is None or wanted is None else bool(fmax >= wanted)
         result = SynthesisResult(
-            target=t.name, device=t.device, top=top, **counts, capacity=capacity, fits=fits, fmax_mhz=fmax,
+            target=t.name, device=t.device, top=top, luts=counts["luts"], ffs=counts["ffs"],
+            carries=counts["carries"], brams=counts["brams"], dsps=counts["dsps"], capacity=capacity,
+            fits=fits, fmax_mhz=fmax,
             clock_mhz=wanted, video=video, meets_clock=meets, latency=_latency(files), seed=seed, tools=tools,
             utilization=use, design_digest=design_digest, plan_digest=None, key=key,
         )  # fmt: skip

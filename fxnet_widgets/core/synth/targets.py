@@ -85,7 +85,8 @@ TARGETS: dict[str, Target] = {
         ),
         Target(
             "ecp5-25k", "LFE5U-25F", "synth_ecp5" + _THEN_JSON, ("LUT4",), ("TRELLIS_FF",), ("CCU2C",),
-            (("DP16KD", 1),), ("MULT18X18D",), 24000, 24000, 56, 28, (), "Lattice ECP5 and ECP5-5G Family Data Sheet (FPGA-DS-02012)",
+            (("DP16KD", 1),), ("MULT18X18D",), 24000, 24000, 56, 28, (),
+            "Lattice ECP5 and ECP5-5G Family Data Sheet (FPGA-DS-02012)",
         ),
         Target(
             "generic", "generic 4-input LUTs", "synth -flatten -top {top}; abc -lut 4; opt_clean; write_json {json}",
