@@ -20,7 +20,7 @@ from pathlib import Path
 from typing import Any
 
 from ..analysis.video import VIDEO_FORMATS
-from ..fileio import FileFormatError, atomic_write_json, load_json
+from ..fileio import FileFormatError, atomic_write_bytes, atomic_write_json, load_json
 from .netlist import WRAPPER, cell_counts, nextpnr_figures, ports, resource_counts, wrapper_verilog
 from .result import SynthesisResult
 from .targets import target as get_target
@@ -125,6 +125,7 @@ def synthesize(
     cancel: threading.Event | None = None,
     cache: bool = True,
     cache_dir: str | os.PathLike[str] | None = None,
+    keep_dir: str | os.PathLike[str] | None = None,
 ) -> SynthesisResult:
     """Synthesize a design with Yosys and, on iCE40 targets, place and route it with nextpnr-ice40.
 
@@ -153,6 +154,9 @@ def synthesize(
         A :class:`threading.Event`; setting it stops the running tool (``SynthesisCancelled``).
     cache, cache_dir
         Read and write results cached by value (default directory: :func:`default_cache_dir`).
+    keep_dir
+        An existing directory to receive the run's scripts, logs and netlists (a run
+        answered from the cache writes none).
 
     Examples
     --------
@@ -195,8 +199,7 @@ def synthesize(
             (run / name).write_bytes(data)
         sources = " ".join(sorted(n for n in files if n.endswith(".v")))
         say(0.1, "yosys: reading the design")
-        (run / "ports.ys").write_text(f"read_verilog {sources}\nhierarchy -check -top {top}\nproc\n"
-                                      "write_json ports.json\n")  # fmt: skip
+        (run / "ports.ys").write_text(f"read_verilog {sources}\nproc\nwrite_json ports.json\n")
         run_tool("yosys", ["-q", "-l", "ports.log", "-s", "ports.ys"], run, timeout=timeout, cancel=cancel,
                  log="ports.out")  # fmt: skip
         port_list = ports(load_json(run / "ports.json"), top, what=str(source) if plan_digest is None else "datapath")
@@ -213,7 +216,7 @@ def synthesize(
         fmax, use = None, {}
         if t.places and fits:
             say(0.6, f"nextpnr-ice40: place and route on {t.device}")
-            args = [*t.nextpnr, "--json", "synth.json", "--seed", str(seed), "--report", "report.json", "--quiet"]
+            args = [*t.nextpnr, "--json", "synth.json", "--seed", str(seed), "--report", "report.json"]
             if wanted is not None:
                 args += ["--freq", f"{wanted:.6f}"]
             run_tool("nextpnr-ice40", args, run, timeout=timeout, cancel=cancel)
@@ -227,11 +230,21 @@ def synthesize(
             clock_mhz=wanted, video=video, meets_clock=meets, latency=_latency(files), seed=seed, tools=tools,
             utilization=use, design_digest=design_digest, plan_digest=None, key=key,
         )  # fmt: skip
+        if keep_dir is not None:
+            _keep(run, Path(keep_dir))
         if cache:
             where.mkdir(parents=True, exist_ok=True)
             atomic_write_json(where / f"{key}.json", result.to_dict())
         say(1.0, "done")
         return _with_plan(result, plan_digest)
+
+
+def _keep(run: Path, keep: Path) -> None:
+    if not keep.is_dir():
+        raise FileFormatError(f"{keep}: keep_dir must be an existing directory, but it is not")
+    for p in sorted(run.iterdir()):
+        if p.is_file():
+            atomic_write_bytes(keep / p.name, p.read_bytes())
 
 
 def _with_plan(result: SynthesisResult, plan_digest: str | None) -> SynthesisResult:
