@@ -24,6 +24,7 @@ SUBCOMMANDS = [
     "import_onnx",
     "export_onnx",
     "cost",
+    "synth",
     "sweep",
     "tune",
     "train",

@@ -16,6 +16,7 @@ from pathlib import Path
 import pytest
 from fxtools import missing
 
+import fxnet_widgets
 from fxnet_widgets.core.synth import (
     CAUTION,
     TARGETS,
@@ -222,3 +223,17 @@ def test_device_tables_name_their_datasheet():
     assert (TARGETS["ice40-up5k"].luts, TARGETS["ice40-up5k"].brams, TARGETS["ice40-up5k"].dsps) == (5280, 30, 8)
     assert (TARGETS["ice40-hx8k"].luts, TARGETS["ice40-hx8k"].brams) == (7680, 32)
     assert (TARGETS["ice40-hx1k"].luts, TARGETS["ice40-hx1k"].brams) == (1280, 16)
+
+
+def test_network_and_plan_go_through_write_datapath(tools, tmp_path, cache):
+    net = fxnet_widgets.Network.from_layers([([[0.5, -0.25, 0.875]], [0.0], "relu")])
+    plan = fxnet_widgets.Plan.uniform(net, weight_bits=6, weight_frac=4, acc_bits=14, out_bits=6, out_frac=3)
+    if not hasattr(fxnet_widgets, "write_datapath"):
+        msg = r"^fxnet_widgets.write_datapath must be installed to synthesize a network and plan, but it is missing$"
+        with pytest.raises(ToolError, match=msg):
+            synthesize(net, plan, cache_dir=cache)
+        return
+    r = synthesize(net, plan, target="ice40-up5k", video="1280x720p60", cache_dir=cache)
+    assert r.plan_digest is not None and r.latency is not None and r.luts > 0
+    again = synthesize(net, plan, target="ice40-up5k", video="1280x720p60", cache_dir=cache)
+    assert again.cached and again == r

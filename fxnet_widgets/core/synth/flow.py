@@ -93,7 +93,9 @@ def _write_datapath(network: Any, plan: Any, directory: Path, options: dict[str,
 
     write = getattr(fxnet_widgets, "write_datapath", None)
     if write is None:
-        raise ToolError("synthesizing a network and plan needs fxnet_widgets.write_datapath, which is missing here")
+        raise ToolError(
+            "fxnet_widgets.write_datapath must be installed to synthesize a network and plan, but it is missing"
+        )
     accepted = inspect.signature(write).parameters
     write(network, plan, directory, **{k: v for k, v in options.items() if k in accepted and v is not None})
 
