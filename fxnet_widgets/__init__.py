@@ -78,6 +78,8 @@ _LAZY: dict[str, str] = {
     "Session": "fxnet_widgets.widgets.session",
     "StatusLinePanel": "fxnet_widgets.widgets.status",
     "SweepProgressBar": "fxnet_widgets.widgets.status",
+    "synthesize": "fxnet_widgets.core.synth",
+    "HardwarePanel": "fxnet_widgets.widgets.hardware",
 }
 
 __all__ = [

@@ -105,6 +105,14 @@ def test_adder_counts_match_yosys_stat_and_fmax_matches_nextpnr_log(tools, tmp_p
     assert CAUTION in r.caution and r.device in r.caution
 
 
+def test_a_clock_not_met_is_a_result_not_a_failure(tools, tmp_path, cache):
+    d = _design(tmp_path, "adder8", ADDER)
+    r = synthesize(d, target="ice40-up5k", top="adder8", clock_mhz=900, cache_dir=cache)
+    # no iCE40 logic runs at 900 MHz (the UltraPlus fabric tops out in the low hundreds of MHz; from memory)
+    assert r.fmax_mhz is not None and r.fmax_mhz < 900 and r.meets_clock is False
+    assert "required clock 900 MHz: NOT met (margin x0." in r.summary()
+
+
 def test_16x16_multiplier_takes_one_dsp_block(tools, tmp_path, cache):
     d = _design(tmp_path, "mul16", MUL16)
     up5k = synthesize(d, target="ice40-up5k", top="mul16", cache_dir=cache)

@@ -100,12 +100,12 @@ class SynthesisResult:
             lines.append(f"  latency: {self.latency} clocks")
         if self.fmax_mhz is not None:
             lines.append(f"  maximum clock (nextpnr, seed {self.seed}): {self.fmax_mhz:.2f} MHz")
-        elif self.capacity and self.target.startswith("ice40") and self.fits:
-            lines.append("  maximum clock: none measured (no register-to-register path)")
         if self.clock_mhz is not None:
             wanted = f"{self.clock_mhz:g} MHz" + (f" ({self.video})" if self.video else "")
             if self.meets_clock is None:
-                lines.append(f"  required clock {wanted}: not timed on this target")
+                why = ("the design does not fit" if not self.fits else "no place and route" if "nextpnr-ice40"
+                       not in self.tools else "no register-to-register path")  # fmt: skip
+                lines.append(f"  required clock {wanted}: not timed ({why})")
             else:
                 verdict = "met" if self.meets_clock else "NOT met"
                 lines.append(f"  required clock {wanted}: {verdict} (margin x{self.margin:.2f})")

@@ -67,8 +67,9 @@ def _tail(path: Path, lines: int = _TAIL_LINES) -> str:
         text = path.read_text("utf-8", errors="replace")
     except OSError:
         return ""
-    kept = [ln for ln in text.splitlines() if ln.strip()][-lines:]
-    return "\n".join("  " + ln for ln in kept)
+    kept = [ln for ln in text.splitlines() if ln.strip()]
+    errors = [ln for ln in kept[:-lines] if "ERROR" in ln][-4:]  # an error the tool reported before its last lines
+    return "\n".join("  " + ln for ln in errors + kept[-lines:])
 
 
 def run_tool(
