@@ -132,10 +132,23 @@ def fit(
     return Calibration(target, dict(tools), designs, len(rows), threshold, coef["luts"], coef["ffs"])
 
 
+_loaded: dict[tuple[str, int, int], dict[str, Calibration]] = {}
+
+
 def calibrations(path: str | Path = CALIBRATION_FILE) -> dict[str, Calibration]:
-    """The fitted calibrations by target (empty when none was fitted)."""
-    if not Path(path).exists():
+    """The fitted calibrations by target (empty when none was fitted); read once per file version."""
+    p = Path(path)
+    if not p.exists():
         return {}
+    st = p.stat()
+    key = (str(p), st.st_mtime_ns, st.st_size)
+    if key not in _loaded:
+        _loaded.clear()
+        _loaded[key] = _read(p)
+    return dict(_loaded[key])
+
+
+def _read(path: Path) -> dict[str, Calibration]:
     doc = load_json(path)
     out = {}
     for d in doc.get("calibrations", []):
