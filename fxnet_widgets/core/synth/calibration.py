@@ -1,11 +1,15 @@
 """Resource estimates (LUTs, flip-flops, block RAMs) calibrated on real synthesis runs.
 
 The analytic cost (:func:`~fxnet_widgets.core.analysis.cost.hardware_cost`) counts
-adder bits, register bits and table bits. A :class:`Calibration` maps those
-features to the LUTs and flip-flops Yosys reports for the reference datapath on
-one target, by least squares over a documented set of generated designs
-(:func:`calibration_plans`: the demo network with plans drawn at random, seeded);
-block RAMs are counted by the device's block shapes. The fitted coefficients live
+adder bits, register bits and table bits. A :class:`Calibration` estimates the LUTs
+and flip-flops Yosys reports for the reference datapath on one target as one
+feature times a ratio, both fitted on a documented set of generated designs
+(:func:`calibration_plans`: the demo network with plans drawn at random, seeded):
+the ratio is the median of measured / feature (robust to the designs whose logic
+the tools fold away), the feature the one with the lowest leave-one-out median
+error. (A least-squares fit on all features was tried first: it over-fitted the
+designs and was far worse on fresh plans.) Block RAMs are counted by the device's
+block shapes. The fitted coefficients live
 in ``calibration.json`` beside this file, written by
 ``python benchmarks/bench_calibration.py --fit``, with the tool version they were
 fitted with; the same script prints the error on fresh plans.
@@ -25,12 +29,14 @@ from ..kernel import quantise
 from ..network import Network
 from ..plan import LayerPlan, Plan
 
-__all__ = ["Calibration", "FEATURES", "features", "block_rams", "fit", "calibration_plans", "calibrations",
-           "estimate", "CALIBRATION_FILE", "BLOCK_SHAPES"]  # fmt: skip
+__all__ = ["Calibration", "FEATURES", "CANDIDATES", "features", "block_rams", "fit", "calibration_plans",
+           "calibrations", "estimate", "CALIBRATION_FILE", "BLOCK_SHAPES"]  # fmt: skip
 
 CALIBRATION_FILE = Path(__file__).with_name("calibration.json")
 #: the least-squares features of every estimate, in order
-FEATURES = ("one", "adder_bits", "acc_bits", "out_bits", "lut_table_bits", "register_bits")
+FEATURES = ("adder_bits", "acc_bits", "out_bits", "lut_table_bits", "register_bits")
+#: the features an estimate may be proportional to (each grows with the plan's widths)
+CANDIDATES = ("adder_bits", "acc_bits", "out_bits", "register_bits")
 #: (depth, width) configurations of one block RAM. iCE40 SB_RAM40_4K: 256x16, 512x8, 1024x4,
 #: 2048x2 (Lattice "Memory Usage Guide for iCE40 Devices", TN1250; from memory). Xilinx 7 RAMB18:
 #: 16384x1 ... 512x36 (7 Series FPGAs Memory Resources, UG473; from memory). ECP5 DP16KD: 16384x1
@@ -67,7 +73,7 @@ def features(cost: Any, target: str, min_bram_bits: int) -> np.ndarray:
     small = sum(e * w for e, w in _tables(cost) if e * w < min_bram_bits or not _shapes(target))
     acc = sum(L.n_out * L.acc_bits for L in cost.layers)
     out = sum(L.n_out * L.table_width if L.tables else L.n_out * L.acc_bits for L in cost.layers)
-    return np.array([1.0, cost.adder_bits, acc, out, small, cost.register_bits], dtype=np.float64)
+    return np.array([cost.adder_bits, acc, out, small, cost.register_bits], dtype=np.float64)
 
 
 def block_rams(cost: Any, target: str, min_bram_bits: int) -> int:
@@ -85,8 +91,8 @@ class Calibration:
     designs: str
     n_designs: int
     min_bram_bits: int
-    luts: tuple[float, ...]
-    ffs: tuple[float, ...]
+    luts: tuple[str, float]  # (feature, ratio)
+    ffs: tuple[str, float]
 
     def estimate(self, network: Network, plan: Plan) -> dict[str, int]:
         """``{"luts", "ffs", "brams"}`` of ``(network, plan)`` on this target."""
@@ -94,29 +100,47 @@ class Calibration:
 
     def estimate_cost(self, cost: Any) -> dict[str, int]:
         """``{"luts", "ffs", "brams"}`` from the analytic ``HardwareCost`` of a plan."""
-        f = features(cost, self.target, self.min_bram_bits)
+        f = dict(zip(FEATURES, features(cost, self.target, self.min_bram_bits).tolist()))
         return {
-            "luts": max(0, round(float(f @ np.array(self.luts)))),
-            "ffs": max(0, round(float(f @ np.array(self.ffs)))),
+            "luts": max(0, round(self.luts[1] * f[self.luts[0]])),
+            "ffs": max(0, round(self.ffs[1] * f[self.ffs[0]])),
             "brams": block_rams(cost, self.target, self.min_bram_bits),
         }
 
     def to_dict(self) -> dict[str, Any]:
         return {"target": self.target, "tools": self.tools, "designs": self.designs, "n_designs": self.n_designs,
-                "min_bram_bits": self.min_bram_bits, "features": list(FEATURES), "luts": list(self.luts),
-                "ffs": list(self.ffs)}  # fmt: skip
+                "min_bram_bits": self.min_bram_bits, "features": list(FEATURES),
+                "luts": {"feature": self.luts[0], "ratio": self.luts[1]},
+                "ffs": {"feature": self.ffs[0], "ratio": self.ffs[1]}}  # fmt: skip
+
+
+def _ratio_fit(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
+    """``(ratio, leave-one-out median relative error)`` of ``y ~ ratio * x`` (ratio: median of y / x)."""
+    ok = x > 0
+    if ok.sum() < 2:
+        return 0.0, float("inf")
+    ratio = float(np.median(y[ok] / x[ok]))
+    loo = []
+    for i in range(len(y)):
+        keep = ok.copy()
+        keep[i] = False
+        r = float(np.median(y[keep] / x[keep])) if keep.any() else ratio
+        loo.append(abs(round(r * x[i]) - y[i]) / max(y[i], 1.0))
+    return ratio, float(np.median(loo))
 
 
 def fit(
     target: str, rows: list[tuple[Network, Plan, dict[str, int]]], tools: dict[str, str], designs: str
 ) -> Calibration:
-    """Least-squares fit of LUTs and flip-flops over ``rows`` of ``(network, plan, measured counts)``.
+    """Fit LUTs and flip-flops over ``rows`` of ``(network, plan, measured counts)``.
 
-    The block-RAM threshold is the smallest table size the measurements show in block RAM
-    (tried over every table size seen; the one with the fewest block-RAM mismatches wins).
+    Per key, every :data:`CANDIDATES` feature gets the median ratio measured / feature;
+    the feature with the lowest leave-one-out median relative error wins. The block-RAM
+    threshold is the table size that leaves the fewest block-RAM mismatches (the smallest
+    of equals).
     """
-    if len(rows) < len(FEATURES):
-        raise ValueError(f"a calibration must have at least {len(FEATURES)} designs, not {len(rows)}")
+    if len(rows) < 3:
+        raise ValueError(f"a calibration must have at least 3 designs, not {len(rows)}")
     costs = [(_cost(net, plan), m) for net, plan, m in rows]
     sizes = sorted({e * w for c, _ in costs for e, w in _tables(c)}) + [2**62]
 
@@ -125,12 +149,12 @@ def fit(
 
     threshold = min(sizes, key=lambda t: (misses(t), t)) if _shapes(target) else 2**62
     X = np.array([features(c, target, threshold) for c, _ in costs])
-    coef = {}
+    chosen: dict[str, tuple[str, float]] = {}
     for key in ("luts", "ffs"):
         y = np.array([m[key] for _, m in costs], dtype=np.float64)
-        weight = 1.0 / np.maximum(y, 1.0)  # least squares of the relative error, the figure the benchmark reports
-        coef[key] = tuple(float(v) for v in np.linalg.lstsq(X * weight[:, None], y * weight, rcond=None)[0])
-    return Calibration(target, dict(tools), designs, len(rows), threshold, coef["luts"], coef["ffs"])
+        best = min(CANDIDATES, key=lambda f: _ratio_fit(X[:, FEATURES.index(f)], y)[1])
+        chosen[key] = (best, _ratio_fit(X[:, FEATURES.index(best)], y)[0])
+    return Calibration(target, dict(tools), designs, len(rows), threshold, chosen["luts"], chosen["ffs"])
 
 
 _loaded: dict[tuple[str, int, int], dict[str, Calibration]] = {}
@@ -155,8 +179,11 @@ def _read(path: Path) -> dict[str, Calibration]:
     for d in doc.get("calibrations", []):
         if d.get("features") != list(FEATURES):
             continue  # fitted for other features: refit with the benchmark
-        out[d["target"]] = Calibration(d["target"], d["tools"], d["designs"], int(d["n_designs"]),
-                                       int(d["min_bram_bits"]), tuple(d["luts"]), tuple(d["ffs"]))  # fmt: skip
+        out[d["target"]] = Calibration(
+            d["target"], d["tools"], d["designs"], int(d["n_designs"]), int(d["min_bram_bits"]),
+            (str(d["luts"]["feature"]), float(d["luts"]["ratio"])),
+            (str(d["ffs"]["feature"]), float(d["ffs"]["ratio"])),
+        )  # fmt: skip
     return out
 
 

@@ -174,6 +174,8 @@ def synthesize(
         raise ValueError(f"seed must be an integer between 0 and 2**31 - 1, not {seed!r}")
     if not (isinstance(timeout, (int, float)) and timeout > 0):
         raise ValueError(f"timeout must be a positive number of seconds, not {timeout!r}")
+    if keep_dir is not None and not Path(keep_dir).is_dir():
+        raise FileFormatError(f"{keep_dir}: keep_dir must be an existing directory, but it is not")
     say: Progress = progress or (lambda fraction, message: None)
     tools = {"yosys": tool_version("yosys")}
     places = t.places and bool(place)
@@ -247,8 +249,6 @@ def synthesize(
 
 
 def _keep(run: Path, keep: Path) -> None:
-    if not keep.is_dir():
-        raise FileFormatError(f"{keep}: keep_dir must be an existing directory, but it is not")
     for p in sorted(run.iterdir()):
         if p.is_file():
             atomic_write_bytes(keep / p.name, p.read_bytes())
