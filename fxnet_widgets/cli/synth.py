@@ -61,8 +61,8 @@ def run(args: argparse.Namespace) -> int:
         raise CliError("fxnet synth: give --clock or --video, not both")
     clock = None if args.clock is None else _number(args.clock, "--clock", 0, 10_000)
     video = None if args.video is None else _video(args.video)
-    seed = int(_number(args.seed, "--seed", -1, 2**31)) if args.seed.isdigit() else None
-    if seed is None:
+    seed = int(args.seed) if args.seed.isascii() and args.seed.isdigit() else None
+    if seed is None or seed >= 2**31:
         raise CliError(f"fxnet synth: --seed must be a whole number between 0 and 2147483647, not {args.seed!r}")
     timeout = _number(args.timeout, "--timeout", 0, 86_400)
     pipeline: int | str | None = None

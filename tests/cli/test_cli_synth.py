@@ -63,6 +63,8 @@ def test_json_has_the_documented_keys(design):
         (["--clock", "50", "--video", "720p60"], "fxnet synth: give --clock or --video, not both"),
         (["--clock", "-1"], "fxnet synth: --clock must be a number between 0 and 10000, not '-1'"),
         (["--seed", "x"], "fxnet synth: --seed must be a whole number between 0 and 2147483647, not 'x'"),
+        (["--seed", "2147483648"], "fxnet synth: --seed must be a whole number between 0 and 2147483647, "
+                                   "not '2147483648'"),
         (["--pipeline", "deep"], "fxnet synth: --pipeline must be auto or a whole number, not 'deep'"),
     ],
 )  # fmt: skip
