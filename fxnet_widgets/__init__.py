@@ -93,6 +93,8 @@ _LAZY: dict[str, str] = {
     "compile_lookup": "fxnet_widgets.core.footage",
     "open_footage": "fxnet_widgets.core.footage",
     "write_demo_clip": "fxnet_widgets.core.footage",
+    "synthesize": "fxnet_widgets.core.synth",
+    "HardwarePanel": "fxnet_widgets.widgets.hardware",
 }
 
 __all__ = [

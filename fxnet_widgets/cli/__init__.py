@@ -25,6 +25,7 @@ SUBCOMMANDS = [
     "import_onnx",
     "export_onnx",
     "cost",
+    "synth",
     "sweep",
     "tune",
     "refine",

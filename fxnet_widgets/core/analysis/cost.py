@@ -28,13 +28,16 @@ from ..network import Network
 from ..plan import Plan
 from .csd import csd_nonzero
 
-__all__ = ["LayerCost", "HardwareCost", "hardware_cost", "COST_KEYS", "MULTIPLIER_MODES"]
+__all__ = ["LayerCost", "HardwareCost", "hardware_cost", "COST_KEYS", "CALIBRATED_KEYS", "MULTIPLIER_MODES"]
 
 MULTIPLIER_MODES = ("csd", "hard")
 #: totals that can serve as the single cost figure of a search
-COST_KEYS = (
+_ANALYTIC_KEYS = (
     "total_bits", "logic_bits", "adder_bits", "adders", "multipliers", "table_bits", "table_blocks", "register_bits",
 )  # fmt: skip
+#: estimates of the reference datapath on a target, calibrated on synthesis runs (core/synth/calibration.py)
+CALIBRATED_KEYS = ("luts", "ffs", "brams")
+COST_KEYS = (*_ANALYTIC_KEYS, *CALIBRATED_KEYS)
 
 
 @dataclass(frozen=True)
@@ -81,6 +84,7 @@ class HardwareCost:
     multiplier_size: tuple[int, int]
     block_bits: int
     pipeline_stages: int
+    target: str = "ice40-up5k"  # the target of the calibrated estimates (CALIBRATED_KEYS)
 
     def _sum(self, key: str) -> int:
         return int(sum(getattr(L, key) for L in self.layers))
@@ -126,14 +130,27 @@ class HardwareCost:
 
     def totals(self) -> dict[str, int]:
         """Network totals, keyed as :data:`COST_KEYS` (plus ``latency``)."""
-        out = {k: int(getattr(self, k)) for k in COST_KEYS}
+        out = {k: int(getattr(self, k)) for k in _ANALYTIC_KEYS}
         out["latency"] = self.latency
         return out
+
+    def estimated(self) -> dict[str, int]:
+        """LUTs, flip-flops and block RAMs of the reference datapath on :attr:`target`, from the
+        calibration fitted on synthesis runs (estimates for that device and tool version, not sign-off)."""
+        from ..synth.calibration import calibrations  # lazily: only searches by a calibrated key need it
+
+        cals = calibrations()
+        if self.target not in cals:
+            raise ValueError(f"target must be one of the calibrated targets ({', '.join(sorted(cals)) or 'none'}), "
+                             f"not {self.target!r}")  # fmt: skip
+        return cals[self.target].estimate_cost(self)
 
     def value(self, key: str) -> int:
         """One total by name (one of :data:`COST_KEYS`)."""
         if key not in COST_KEYS:
             raise ValueError(f"cost must be one of {', '.join(COST_KEYS)}, not {key!r}")
+        if key in CALIBRATED_KEYS:
+            return self.estimated()[key]
         return int(getattr(self, key))
 
     def to_dict(self) -> dict[str, Any]:
@@ -201,6 +218,7 @@ def hardware_cost(
     multiplier_size: tuple[int, int] = (18, 18),
     block_bits: int = 18432,
     pipeline_stages: int = 3,
+    target: str = "ice40-up5k",
 ) -> HardwareCost:
     """Analytic cost of the integer network of ``(network, plan)``.
 
@@ -245,6 +263,9 @@ def hardware_cost(
         Bits of one memory block (default 18432).
     pipeline_stages
         Register stages per layer (default 3; 0 is purely combinational).
+    target
+        Synthesis target of the calibrated estimates ``luts``, ``ffs``, ``brams``
+        (:meth:`HardwareCost.estimated`; see ``fxnet_widgets.core.synth.calibration``).
     """
     if multipliers not in MULTIPLIER_MODES:
         raise ValueError(f"multipliers must be one of csd, hard, not {multipliers!r}")
@@ -299,4 +320,6 @@ def hardware_cost(
             )
         )  # fmt: skip
         in_bits, in_signed = p.out_bits, L.out_signed
-    return HardwareCost(tuple(layers), multipliers, size, block_bits, stages)
+    if not isinstance(target, str):
+        raise TypeError(f"target must be a target name, not {target!r}")
+    return HardwareCost(tuple(layers), multipliers, size, block_bits, stages, target)
