@@ -46,6 +46,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--video", metavar="FORMAT",
                    help=f"clock to meet: a video format's pixel clock ({', '.join(VIDEO_FORMATS)})")  # fmt: skip
     p.add_argument("--pipeline", metavar="auto|N", help="pipeline of the generated datapath (default auto)")
+    p.add_argument("--products", choices=("shift-add", "multiply"), default="shift-add",
+                   help="constant products of the generated datapath (default shift-add)")  # fmt: skip
     p.add_argument("--seed", default="1", help="placement seed of nextpnr (default 1)")
     p.add_argument("--timeout", default="600", metavar="S", help="seconds each tool may run (default 600)")
     p.add_argument("--no-cache", action="store_true", help="synthesize even when a cached result exists")
@@ -86,6 +88,7 @@ def run(args: argparse.Namespace) -> int:
     try:
         result = synthesize(
             source, plan, target=args.target, top=args.top, clock_mhz=clock, video=video, pipeline=pipeline,
+            products=args.products,
             seed=seed, timeout=timeout, cache=not args.no_cache, progress=progress if args.progress else None,
         )  # fmt: skip
     except (ToolError, SynthesisCancelled) as exc:

@@ -39,7 +39,8 @@ np.save(WORK / "wide.npy", np.full((2, 3), 300, dtype=np.int64))
 (WORK / "text.png").write_text("not a png")
 (WORK / "adir").mkdir()
 
-HEAVY = {"sweep", "tune", "train", "demo", "footage", "synth", "refine"}  # footage: 2^24-colour look-ups; synth: Yosys runs
+# footage builds 2^24-colour look-ups, synth runs Yosys, refine searches integers: stopped at the output check
+HEAVY = {"sweep", "tune", "train", "demo", "footage", "synth", "refine"}
 FILES = [str(WORK / n) for n in ("net.json", "plan.json", "img.png", "mask.png", "codes.npy", "floats.npy", "wide.npy",
                                  "broken.json", "plan-1-layer.json", "text.png", "adir", "missing.json")]  # fmt: skip
 OUTPUTS = [str(WORK / n) for n in ("out.npz", "out.json", "out.html", "out", "out.txt", "adir")]

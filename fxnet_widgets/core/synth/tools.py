@@ -107,6 +107,10 @@ def run_tool(
             if proc.poll() is None:
                 proc.kill()
                 proc.wait()
+    if proc.returncode < 0:
+        raise ToolError(f"{name} must succeed, but it crashed (signal {-proc.returncode}), a fault of the tool "
+                        "itself; for a generated datapath try products='shift-add'; its last lines:\n"
+                        + _tail(log_path))  # fmt: skip
     if proc.returncode != 0:
         raise ToolError(f"{name} must succeed, but it exited with code {proc.returncode}; its last lines:\n"
                         + _tail(log_path))  # fmt: skip
