@@ -76,12 +76,12 @@ def sweep(
     n_layers = len(network.layers)
     if layer is not None and (isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < n_layers):
         raise ValueError(f"layer must be None or an index from 0 to {n_layers - 1}, not {layer!r}")
+    flat, lab = prepare_data(network, codes, labels)
     if base is None:
-        base = start_plan(network)
+        base = start_plan(network, flat)
     elif not isinstance(base, Plan):
         raise TypeError(f"base must be a Plan, not {type(base).__name__}")
     base.check(network)
-    flat, lab = prepare_data(network, codes, labels)
     names = list(g)
     derive = safe_acc and "acc_bits" not in g
     tasks = []

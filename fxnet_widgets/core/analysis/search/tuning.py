@@ -187,7 +187,7 @@ def tune(
     opts = check_cost_options(cost_options)
     flat, lab = prepare_data(network, codes, labels)
     if start is None:
-        start = start_plan(network)
+        start = start_plan(network, flat)
     elif not isinstance(start, Plan):
         raise TypeError(f"start must be a Plan, not {type(start).__name__}")
     start.check(network)
