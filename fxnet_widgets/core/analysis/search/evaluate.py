@@ -26,7 +26,9 @@ from .executors import Runner
 from .progress import Progress
 from .records import SweepRecord
 
-__all__ = ["PlanTask", "evaluate", "evaluate_plans", "check_cost_key", "check_cost_options", "prepare_data"]
+__all__ = [
+    "PlanTask", "argmax_ties", "evaluate", "evaluate_plans", "check_cost_key", "check_cost_options", "prepare_data",
+]
 
 
 @dataclass(frozen=True)
@@ -76,12 +78,29 @@ def _evaluate_one(
     except ValueError as exc:
         return SweepRecord(task.index, task.settings, plan, None, cost_key, error=str(exc))
     m = error_metrics(result, labels)
+    ties, tied_agreeing = argmax_ties(result.out_codes, result.decisions, result.float_decisions)
     return SweepRecord(
         index=task.index, settings=task.settings, plan=plan, cost=cost.value(cost_key), cost_key=cost_key,
         costs=cost.totals(), mismatch=m.mismatch, mismatch_fraction=m.mismatch_fraction,
         max_abs_error_lsb=max(m.max_abs_error_lsb), mean_abs_error_lsb=float(np.mean(m.mean_abs_error_lsb)),
-        accuracy=m.accuracy, events=m.events,
+        accuracy=m.accuracy, events=m.events, ties=ties, tied_agreeing=tied_agreeing,
     )  # fmt: skip
+
+
+def argmax_ties(out_codes: np.ndarray, decisions: np.ndarray, float_decisions: np.ndarray) -> tuple[int, int]:
+    """(tied, tied and agreeing with float): decisions of several outputs whose top code is shared.
+
+    The contract decides a tie by the lowest index (semantics.md, step 8); one output has no ties.
+
+    >>> argmax_ties(np.array([[3, 3, 1], [1, 2, 0], [0, 5, 5]]), np.array([0, 1, 1]), np.array([0, 1, 2]))
+    (2, 1)
+    """
+    codes = np.asarray(out_codes).reshape(-1, np.shape(out_codes)[-1])
+    if codes.shape[1] < 2:
+        return 0, 0
+    tied = np.count_nonzero(codes == codes.max(axis=1, keepdims=True), axis=1) > 1
+    agree = np.asarray(decisions).reshape(-1) == np.asarray(float_decisions).reshape(-1)
+    return int(np.count_nonzero(tied)), int(np.count_nonzero(tied & agree))
 
 
 def _run_chunk(

@@ -27,6 +27,8 @@ class SweepRecord:
     max_abs_error_lsb, mean_abs_error_lsb : output error in LSBs (max / mean over outputs)
     accuracy : against labels, or None
     events : event totals on the data
+    ties : decisions of several outputs decided by the lowest-index rule (two or more top codes equal)
+    tied_agreeing : those of them that agree with float (by the index order, not by the codes)
     error : why the kernel refused the plan (then every metric is None/empty)
     """
 
@@ -43,6 +45,15 @@ class SweepRecord:
     accuracy: float | None = None
     events: Mapping[str, int] = field(default_factory=dict, hash=False)
     error: str | None = None
+    ties: int | None = None
+    tied_agreeing: int | None = None
+
+    @property
+    def strict_mismatch(self) -> int | None:
+        """Decisions that differ from float or agree only through a tie (None if refused)."""
+        if self.mismatch is None:
+            return None
+        return self.mismatch + (self.tied_agreeing or 0)
 
     @property
     def ok(self) -> bool:
@@ -64,5 +75,7 @@ class SweepRecord:
             "accuracy": self.accuracy,
             "events": dict(self.events),
             "error": self.error,
+            "ties": self.ties,
+            "tied_agreeing": self.tied_agreeing,
             "plan": self.plan.to_dict(),
         }

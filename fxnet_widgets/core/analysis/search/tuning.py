@@ -13,7 +13,7 @@ from ...plan import _check_field as check_plan_field
 from ...starting import start_plan
 from ..cost import HardwareCost, hardware_cost
 from ..metrics import ErrorMetrics, error_metrics
-from .evaluate import PlanTask, check_cost_key, check_cost_options, evaluate, prepare_data
+from .evaluate import PlanTask, argmax_ties, check_cost_key, check_cost_options, evaluate, prepare_data
 from .executors import Runner
 from .progress import Progress
 from .records import SweepRecord
@@ -91,7 +91,8 @@ class TuneResult:
     Attributes
     ----------
     plan : the cheapest plan found that meets the budget
-    start : the guaranteed-safe plan it started from
+    start : the guaranteed-safe plan it started from (:func:`~fxnet_widgets.core.starting.start_plan`
+        on the data unless given)
     max_mismatch : the budget (fraction of decisions that may differ from float)
     steps : the accepted moves, in order
     records : every plan evaluated, in evaluation order
@@ -159,7 +160,9 @@ def tune(
 
     A plan is *acceptable* when at most ``max_mismatch`` (a fraction) of its
     decisions differ from float on ``codes`` and no accumulator overflows on
-    them. Starting from ``start`` (default
+    them. With several outputs, a decision whose top code is shared (an argmax
+    tie, decided by the lowest index) counts as differing even when the lowest
+    index happens to be float's choice: such agreement is luck of the class order. Starting from ``start`` (default
     :func:`~fxnet_widgets.core.starting.start_plan`, whose accumulators cannot
     overflow), each round evaluates every move of :data:`TUNE_MOVES` on every
     layer by 1, 2 and 4 bits (``weight_lsb``: ``weight_bits`` and ``weight_frac``
@@ -192,10 +195,11 @@ def tune(
         raise TypeError(f"start must be a Plan, not {type(start).__name__}")
     start.check(network)
 
+    n = max(1, flat.shape[0])
+
     def acceptable(r: SweepRecord) -> bool:
-        return r.ok and r.mismatch_fraction is not None and r.mismatch_fraction <= max_mismatch and not r.events.get(
-            "acc_overflow", 0
-        )
+        strict = r.strict_mismatch
+        return r.ok and strict is not None and strict / n <= max_mismatch and not r.events.get("acc_overflow", 0)
 
     n_moves = len(network.layers) * len(TUNE_MOVES) * len(STEPS)
     records: list[SweepRecord] = []
@@ -217,8 +221,8 @@ def tune(
             why = (
                 cur.error
                 if not cur.ok
-                else f"{cur.mismatch_fraction:.6g} of decisions differ from float and "
-                f"{cur.events.get('acc_overflow', 0)} accumulator overflows"
+                else f"{(cur.strict_mismatch or 0) / n:.6g} of decisions differ from float (or agree only "
+                f"through a tie) and {cur.events.get('acc_overflow', 0)} accumulator overflows"
             )
             raise ValueError(
                 f"the starting plan must meet the budget (max_mismatch {max_mismatch:g}, no accumulator "
@@ -248,7 +252,8 @@ def tune(
     result = emulate(network, plan, codes)
     metrics = error_metrics(result, labels)
     hw = hardware_cost(network, plan, **opts)
-    verified = metrics.mismatch_fraction <= max_mismatch and metrics.events["acc_overflow"] == 0
+    _, tied_agreeing = argmax_ties(result.out_codes, result.decisions, result.float_decisions)
+    verified = (metrics.mismatch + tied_agreeing) / n <= max_mismatch and metrics.events["acc_overflow"] == 0
     return TuneResult(
         plan, start, float(max_mismatch), cost, tuple(steps), tuple(records), metrics, hw, verified, local_min
     )
