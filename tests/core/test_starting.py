@@ -37,13 +37,13 @@ def grid32() -> np.ndarray:
 
 def test_start_plan_cannot_overflow(net, codes):
     p = start_plan(net)
-    intnet = fw.quantise(net, p)
+    intnet = fw.build_integer_network(net, p)
     assert [lp.acc_bits for lp in p.layers] == [int(L.safe_acc_bits.max()) for L in intnet.layers]
     assert all(lp.weight_bits == 16 for lp in p.layers)
     assert fw.emulate(net, p, codes).event_totals()["weight_clip"] == 0
     # the largest weight_frac without a clip: one more fraction bit would clip (by construction)
     more = p.replace(layer=0, weight_frac=p.layers[0].weight_frac + 1)
-    assert fw.quantise(net, more).layers[0].weight_clip.sum() > 0
+    assert fw.build_integer_network(net, more).layers[0].weight_clip.sum() > 0
 
 
 @pytest.mark.parametrize("lo, hi, bits, signed", [(-1.0, 0.5, 8, True), (0.0, 1.0, 8, True), (0.0, 1.0, 8, False),
@@ -87,7 +87,8 @@ def test_relu_photo_network_starts_in_agreement_with_float(photo_net):
     assert 1 - on_image.mismatch / on_image.n >= 0.995
     assert 1 - on_grid.mismatch / on_grid.n >= 0.99
     assert on_image.event_totals()["acc_overflow"] == on_grid.event_totals()["acc_overflow"] == 0
-    assert [lp.acc_bits for lp in plan.layers] == [int(L.safe_acc_bits.max()) for L in fw.quantise(net, plan).layers]
+    intnet = fw.build_integer_network(net, plan)
+    assert [lp.acc_bits for lp in plan.layers] == [int(L.safe_acc_bits.max()) for L in intnet.layers]
     # nothing saturates on the data: no clamp at the top of a relu, none at either end of the identity logits
     for i, L in enumerate(net.layers):
         assert on_image.events[i]["table_high"].sum() == 0

@@ -22,7 +22,7 @@ def test_sweep_order_and_contents(net, codes, grid, records):
     for r in records:
         assert r.ok and all(lp.weight_frac == dict(r.settings)["weight_frac"] for lp in r.plan.layers)
         # safe_acc: every accumulator at its guaranteed-safe width, hence no overflow
-        intnet = fw.quantise(net, r.plan)
+        intnet = fw.build_integer_network(net, r.plan)
         assert [lp.acc_bits for lp in r.plan.layers] == [int(L.safe_acc_bits.max()) for L in intnet.layers]
         assert r.events["acc_overflow"] == 0
         m = error_metrics(fw.emulate(net, r.plan, codes))
