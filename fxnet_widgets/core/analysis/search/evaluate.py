@@ -19,7 +19,7 @@ import numpy as np
 from ...kernel import emulate
 from ...network import Network, as_codes
 from ...plan import Plan
-from ...starting import with_safe_acc
+from ...starting import start_plan, with_safe_acc
 from ..cost import COST_KEYS, hardware_cost
 from ..metrics import check_labels, error_metrics
 from .executors import Runner
@@ -27,7 +27,8 @@ from .progress import Progress
 from .records import SweepRecord
 
 __all__ = [
-    "PlanTask", "argmax_ties", "evaluate", "evaluate_plans", "check_cost_key", "check_cost_options", "prepare_data",
+    "PlanTask", "argmax_ties", "base_plan", "evaluate", "evaluate_plans", "check_cost_key", "check_cost_options",
+    "prepare_data",
 ]
 
 
@@ -142,6 +143,15 @@ def prepare_data(network: Network, codes: Any, labels: Any) -> tuple[np.ndarray,
         lab = check_labels(labels, flat.shape[0], shape, len(network.classes))
         lab = lab.astype(np.int16 if len(network.classes) < 32768 else np.int64)
     return flat, lab
+
+
+def base_plan(network: Network, plan: Any, flat: np.ndarray, what: str) -> Plan:
+    """``plan`` checked against ``network``, or when None the generous start plan on the data ``flat``."""
+    if plan is None:
+        return start_plan(network, flat)
+    if not isinstance(plan, Plan):
+        raise TypeError(f"{what} must be a Plan, not {type(plan).__name__}")
+    return plan.check(network)
 
 
 def evaluate(

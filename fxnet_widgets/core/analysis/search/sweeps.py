@@ -8,8 +8,7 @@ from typing import Any
 
 from ...network import Network
 from ...plan import Plan
-from ...starting import start_plan
-from .evaluate import PlanTask, check_cost_key, check_cost_options, evaluate, prepare_data
+from .evaluate import PlanTask, base_plan, check_cost_key, check_cost_options, evaluate, prepare_data
 from .executors import Runner
 from .grid import apply_settings, check_grid
 from .progress import Progress
@@ -77,11 +76,7 @@ def sweep(
     if layer is not None and (isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < n_layers):
         raise ValueError(f"layer must be None or an index from 0 to {n_layers - 1}, not {layer!r}")
     flat, lab = prepare_data(network, codes, labels)
-    if base is None:
-        base = start_plan(network, flat)
-    elif not isinstance(base, Plan):
-        raise TypeError(f"base must be a Plan, not {type(base).__name__}")
-    base.check(network)
+    base = base_plan(network, base, flat, "base")
     names = list(g)
     derive = safe_acc and "acc_bits" not in g
     tasks = []

@@ -10,10 +10,9 @@ from ...kernel import emulate
 from ...network import Network
 from ...plan import Plan
 from ...plan import _check_field as check_plan_field
-from ...starting import start_plan
 from ..cost import HardwareCost, hardware_cost
 from ..metrics import ErrorMetrics, error_metrics
-from .evaluate import PlanTask, argmax_ties, check_cost_key, check_cost_options, evaluate, prepare_data
+from .evaluate import PlanTask, argmax_ties, base_plan, check_cost_key, check_cost_options, evaluate, prepare_data
 from .executors import Runner
 from .progress import Progress
 from .records import SweepRecord
@@ -189,11 +188,7 @@ def tune(
     check_cost_key(cost)
     opts = check_cost_options(cost_options)
     flat, lab = prepare_data(network, codes, labels)
-    if start is None:
-        start = start_plan(network, flat)
-    elif not isinstance(start, Plan):
-        raise TypeError(f"start must be a Plan, not {type(start).__name__}")
-    start.check(network)
+    start = base_plan(network, start, flat, "start")
 
     n = max(1, flat.shape[0])
 
