@@ -94,7 +94,7 @@ def main() -> None:
     net = network()
     plan = fw.Plan.uniform(net, **PLAN)
     plan2 = plan.replace(table_bits=13, table_frac=8)
-    q = kernel.quantise(net, plan)
+    q = kernel.build_integer_network(net, plan)
     n = img.shape[0] * img.shape[1]
 
     # the straightforward version is checked here; fxpmath and apytypes are checked bit for bit
@@ -110,7 +110,7 @@ def main() -> None:
 
     def new_image():
         kernel.clear_caches()
-        kernel.quantise(net, plan)  # the plan's integer network is not per-image work
+        kernel.build_integer_network(net, plan)  # the plan's integer network is not per-image work
 
     rows["ours, first call on a new image"] = median_time(lambda: fw.emulate(net, plan, img), args.repeat, new_image)
     plans = [plan, plan2]
@@ -118,7 +118,7 @@ def main() -> None:
     def alternate():
         fresh[0] ^= 1
         kernel.caches.LAYER_CACHE.clear()
-        kernel.quantise(net, plans[fresh[0]])
+        kernel.build_integer_network(net, plans[fresh[0]])
 
     fw.emulate(net, plan, img)
     rows["ours, new plan on the same image"] = median_time(

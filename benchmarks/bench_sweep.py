@@ -22,7 +22,7 @@ import numpy as np
 
 import fxnet_widgets as fw
 from fxnet_widgets.core.analysis import SerialExecutor, start_plan, sweep
-from fxnet_widgets.core.analysis.search import _local_pool
+from fxnet_widgets.core.analysis.search import local_pool as _local_pool
 from fxnet_widgets.core.kernel import clear_caches
 
 

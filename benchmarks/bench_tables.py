@@ -40,7 +40,7 @@ def demo_specs() -> list[TableSpec]:
     net = fw.Network.load(ROOT / "assets" / "network.json")
     plan = fw.Plan.load(ROOT / "assets" / "plan.json", net)
     specs = []
-    for L in kernel.quantise(net, plan).layers:
+    for L in kernel.build_integer_network(net, plan).layers:
         p = L.plan
         if L.table is not None:
             assert p.table_bits is not None and p.table_frac is not None

@@ -18,16 +18,16 @@ from .core import (
     LayerPlan,
     Network,
     Plan,
+    build_integer_network,
     emulate,
     q_notation,
-    quantise,
+    round_to_codes,
 )
 from .core.analysis import (
     VIDEO_FORMATS,
     Attribution,
     ErrorMetrics,
     HardwareCost,
-    SerialExecutor,
     SweepRecord,
     TuneResult,
     attribute_errors,
@@ -37,12 +37,11 @@ from .core.analysis import (
     hardware_cost,
     pareto_front,
     sweep,
-    text_progress,
     throughput,
     tune,
 )
 from .core.datapath import write_datapath
-from .core.demo import build_demo, suggest_plan, write_demo
+from .core.demo import build_demo, write_demo
 from .core.export import export
 from .core.images import RGBImage, read_image
 from .core.imports import from_arrays, from_sklearn, load_npz, save_npz
@@ -58,9 +57,11 @@ from .core.labels import (
 from .core.onnx_io import load_onnx, save_onnx
 from .core.refine import Refinement, refine
 from .core.scenes import Scene, make_scene
+from .core.starting import start_plan, starting_plan, suggest_plan
 from .core.training import Training, TrainingReport, fit, train
+from .core.version import VERSION
 
-__version__ = "0.1.0"
+__version__ = VERSION
 
 # public names that live in modules needing optional or heavy imports: name -> module
 _LAZY: dict[str, str] = {
@@ -106,15 +107,15 @@ __all__ = [
     "LayerPlan",
     "Network",
     "Plan",
+    "build_integer_network",
     "emulate",
     "export",
     "q_notation",
-    "quantise",
+    "round_to_codes",
     "VIDEO_FORMATS",
     "Attribution",
     "ErrorMetrics",
     "HardwareCost",
-    "SerialExecutor",
     "SweepRecord",
     "TuneResult",
     "attribute_errors",
@@ -124,7 +125,6 @@ __all__ = [
     "hardware_cost",
     "pareto_front",
     "sweep",
-    "text_progress",
     "throughput",
     "tune",
     "LabelledPixels",
@@ -150,6 +150,8 @@ __all__ = [
     "save_onnx",
     "Refinement",
     "refine",
+    "start_plan",
+    "starting_plan",
     "suggest_plan",
     "train",
     "write_demo",

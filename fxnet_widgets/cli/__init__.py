@@ -13,6 +13,7 @@ import importlib
 import sys
 from collections.abc import Sequence
 
+from ..core.version import VERSION
 from ._common import CliError, run_guarded
 
 __all__ = ["main", "SUBCOMMANDS"]
@@ -45,7 +46,7 @@ class _Parser(argparse.ArgumentParser):
 
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="fxnet", description="Fixed-point design of small neural networks, with evidence.")
-    parser.add_argument("--version", action="version", version="fxnet-widgets 0.1.0")
+    parser.add_argument("--version", action="version", version=f"fxnet-widgets {VERSION}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name in SUBCOMMANDS:
         importlib.import_module(f"{__name__}.{name}").register(sub)

@@ -10,9 +10,8 @@ from typing import Any
 
 import numpy as np
 
-from ..core.fileio import load_npy
-from ..core.images import read_image
-from ..core.network import Network, as_codes
+from ..core.inputs import load_codes
+from ..core.network import Network
 from ..core.plan import Plan
 
 IMAGE_SUFFIXES = (".png", ".jpg", ".jpeg", ".bmp", ".gif", ".tif", ".tiff", ".webp", ".ppm", ".pgm", ".pnm")
@@ -55,27 +54,11 @@ def load_plan(path: str, network: Network) -> Plan:
 def load_input(path: str, network: Network) -> tuple[np.ndarray, str]:
     """Codes from an image file or a ``.npy`` of codes; returns ``(codes, note)``.
 
-    Images come back H x W x 3 (uint8); ``.npy`` N x n_in. Errors name the file.
+    Images come back H x W x 3 (uint8); ``.npy`` N x n_in. Errors name the file
+    (:func:`fxnet_widgets.core.inputs.load_codes`, the loader export uses too).
     """
-    lower = path.lower()
-    if lower.endswith(".npy"):
-        arr = load_npy(path)
-        try:
-            flat, _ = as_codes(arr, network.input_bits, network.n_in, what="codes")
-            if arr.ndim != 2:
-                raise ValueError(f"codes must be N x {network.n_in}, not shape {arr.shape}")
-        except (TypeError, ValueError) as exc:
-            raise type(exc)(f"{path}: {exc}") from None
-        return arr, ""
-    if not os.path.exists(path):
-        raise CliError(f"fxnet: {path}: no such file")
-    img = read_image(path)
-    if network.n_in != 3 or network.input_bits != 8:
-        raise CliError(
-            f"fxnet: {path}: an image gives 3 inputs of 8 bits, but the network has {network.n_in} inputs of "
-            f"{network.input_bits} bits (give a .npy of codes instead)"
-        )
-    return img.codes, img.note
+    got = load_codes(path, network)  # bad input raises with the file named; run_guarded prints "fxnet: ..."
+    return got.codes, got.note
 
 
 def print_json(obj: Any) -> None:

@@ -11,7 +11,7 @@ import numpy as np
 
 from ..core.analysis.cost import COST_KEYS
 from ..core.analysis.metrics import check_labels
-from ..core.analysis.search import SerialExecutor, _local_pool, pareto_front, parse_grid, sweep, text_progress
+from ..core.analysis.search import SerialExecutor, local_pool, pareto_front, parse_grid, sweep, text_progress
 from ..core.fileio import atomic_write_json, load_npy
 from ..core.images import read_image
 from ..core.network import Network
@@ -49,7 +49,7 @@ def executor_for(workers: int | None) -> Any:
         return None
     if workers < 0:
         raise CliError(f"fxnet: --workers must be at least 0, not {workers}")
-    return SerialExecutor() if workers == 0 else _local_pool(workers)
+    return SerialExecutor() if workers == 0 else local_pool(workers)
 
 
 def progress_for(args: argparse.Namespace) -> Any:

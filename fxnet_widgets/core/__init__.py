@@ -1,8 +1,7 @@
 """The pure core: numpy (and pillow for image files) only, never a widget library."""
 
-from .formats import OVERFLOWS, ROUNDINGS, q_notation
-from .formats import quantise as quantise_values
-from .kernel import EVENT_NAMES, Emulation, IntegerNetwork, emulate, quantise
+from .formats import OVERFLOWS, ROUNDINGS, q_notation, round_to_codes
+from .kernel import EVENT_NAMES, Emulation, IntegerNetwork, build_integer_network, emulate
 from .network import Network
 from .plan import LayerPlan, Plan
 
@@ -15,8 +14,8 @@ __all__ = [
     "LayerPlan",
     "Network",
     "Plan",
+    "build_integer_network",
     "emulate",
     "q_notation",
-    "quantise",
-    "quantise_values",
+    "round_to_codes",
 ]

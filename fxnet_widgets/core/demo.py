@@ -7,7 +7,8 @@ measures both on the test scene. :func:`write_demo` writes the files; the
 repository's ``assets/`` directory is exactly ``write_demo("assets",
 class_maps=True)`` and a test regenerates it and compares.
 
-The suggested plan (:func:`suggest_plan`) is derived, not searched: per layer
+The suggested plan (:func:`~fxnet_widgets.core.starting.suggest_plan`, the
+rule of :mod:`fxnet_widgets.core.starting`) is derived, not searched: per layer
 10-bit weights with the largest fraction that clips no weight, the
 guaranteed-safe accumulator width (so no input can overflow), a 14-bit table
 address covering sums in [-8, 8) and 8-bit outputs. It is a comfortable
@@ -22,7 +23,6 @@ Examples
 
 from __future__ import annotations
 
-import math
 import os
 from dataclasses import dataclass
 from pathlib import Path
@@ -30,13 +30,13 @@ from typing import Any
 
 import numpy as np
 
-from .formats import round_float, signed_range
 from .images import save_png
-from .kernel import Emulation, emulate, quantise
+from .kernel import Emulation, emulate
 from .labels import ClassTable, labels_from_mask
 from .network import Network
-from .plan import LayerPlan, Plan
+from .plan import Plan
 from .scenes import CLASS_COLOURS, CLASSES, Scene, make_scene
+from .starting import suggest_plan
 from .training import Training, train
 
 __all__ = [
@@ -126,46 +126,6 @@ class Demo:
                 f"accumulator overflows {overflows}",
             ]
         )
-
-
-def _largest_frac(weights: np.ndarray, bits: int) -> int:
-    """Largest fraction at which no weight clips in ``bits`` (half-even rounding)."""
-    lo, hi = signed_range(bits)
-    big = float(np.max(np.abs(weights)))
-    frac = bits - 1 - (math.ceil(math.log2(big)) if big > 0 else 0) + 1
-    while True:
-        q = round_float(weights * 2.0**frac, "half-even")
-        if q.min() >= lo and q.max() <= hi:
-            return frac
-        frac -= 1
-
-
-def suggest_plan(
-    network: Network, *, weight_bits: int = 10, table_bits: int = 14, out_bits: int = 8
-) -> Plan:
-    """A safe starting plan for a sigmoid/tanh network (see the module text).
-
-    Per layer: the largest ``weight_frac`` at which no weight clips, the
-    guaranteed-safe ``acc_bits``, ``table_frac = table_bits - 4`` (table covers
-    sums in [-8, 8)), outputs of ``out_bits``.
-    """
-    layers = []
-    for L in network.layers:
-        if not L.has_table:
-            raise ValueError(f"suggest_plan needs sigmoid or tanh layers, not {L.activation!r}")
-        frac = _largest_frac(L.weights, weight_bits)
-        layers.append(
-            LayerPlan(weight_bits=weight_bits, weight_frac=frac, acc_bits=62, out_bits=out_bits,
-                      table_bits=table_bits, table_frac=table_bits - 4)
-        )  # fmt: skip
-    wide = Plan(tuple(layers))
-    q = quantise(network, wide.check(network))
-    return Plan(
-        tuple(
-            LayerPlan(**{**lp.__dict__, "acc_bits": int(max(1, L.safe_acc_bits.max()))})
-            for lp, L in zip(layers, q.layers, strict=False)
-        )
-    )
 
 
 def demo_class_table() -> ClassTable:

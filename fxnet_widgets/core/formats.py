@@ -46,7 +46,7 @@ __all__ = [
     "unsigned_range",
     "bits_for_range",
     "q_notation",
-    "quantise",
+    "round_to_codes",
 ]
 
 
@@ -175,7 +175,7 @@ def q_notation(width: int, frac: int, signed: bool = True) -> str:
     return f"{'Q' if signed else 'UQ'}{m}.{frac} ({width} b)"
 
 
-def quantise(
+def round_to_codes(
     values: np.ndarray,
     width: int,
     frac: int,
@@ -188,7 +188,7 @@ def quantise(
 
     ``code = overflow(round(value * 2**frac))``. Returns int64 codes.
 
-    >>> quantise(np.array([7.97]), 8, 4, overflow="wrap").tolist()
+    >>> round_to_codes(np.array([7.97]), 8, 4, overflow="wrap").tolist()
     [-128]
     """
     check_overflow(overflow)

@@ -20,7 +20,7 @@ import numpy as np
 
 from ..core.analysis.cost import HardwareCost, hardware_cost
 from ..core.analysis.metrics import ErrorMetrics, error_metrics
-from ..core.kernel import EVENT_NAMES, quantise
+from ..core.kernel import EVENT_NAMES, build_integer_network
 from ..core.plan import LayerPlan
 from ..render import (
     bar_chart_png,
@@ -109,7 +109,7 @@ def plan_cell(lp: LayerPlan, field: str, layer: Any) -> str:
 
 def _plan_section(result: Any, network: Any) -> str:
     rows = []
-    intnet = quantise(network, result.plan)
+    intnet = build_integer_network(network, result.plan)
     for i, (lp, L, K) in enumerate(zip(result.plan.layers, network.layers, intnet.layers)):
         rows.append([i + 1, L.activation, f"{L.n_in}->{L.n_out}", *(plan_cell(lp, f, K) for f in PLAN_FIELDS)])
     table = table_html(["layer", "activation", "shape", *PLAN_FIELDS], rows, cls="plan", caption="fixed-point plan")

@@ -261,12 +261,12 @@ class PlanControlsPanel(w.VBox):
         self._show_safe()
 
     def _intlayers(self) -> list[Any]:
-        from ..core.kernel import quantise
+        from ..core.kernel import build_integer_network
 
         try:
-            return list(quantise(self.session.network, self.session.plan).layers)
+            return list(build_integer_network(self.session.network, self.session.plan).layers)
         except (TypeError, ValueError):
-            return list(quantise(self.session.network, self.session.result.plan).layers)
+            return list(build_integer_network(self.session.network, self.session.result.plan).layers)
 
     def _show_safe(self) -> None:
         try:

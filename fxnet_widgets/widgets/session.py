@@ -45,9 +45,10 @@ import traitlets as t
 
 from ..core.formats import signed_range
 from ..core.images import RGBImage, read_image
-from ..core.kernel import EVENT_NAMES, Emulation, IntegerLayer, emulate, quantise
+from ..core.kernel import EVENT_NAMES, Emulation, IntegerLayer, build_integer_network, emulate
 from ..core.network import Network, as_codes
 from ..core.plan import Plan
+from ..core.starting import suggest_plan as default_plan
 from ..render.raster import MAX_PREVIEW_WIDTH, DownscaledImage, downscale
 
 __all__ = [
@@ -200,28 +201,6 @@ class SessionResult:
 
 # ---------------------------------------------------------------------------------
 # helpers (pure functions on the core's results)
-def default_plan(network: Network, weight_bits: int = 8, out_bits: int = 8, table_bits: int = 10) -> Plan:
-    """A starting plan: weights scaled to their largest magnitude, a table covering
-    about +-8, and every accumulator at its guaranteed-safe width.
-    """
-    layers = []
-    for L in network.layers:
-        big = float(max(np.max(np.abs(L.weights)), 1e-12))
-        frac = weight_bits - 1 - max(0, math.ceil(math.log2(big * (1 + 1e-9))))
-        doc: dict[str, Any] = {"weight_bits": weight_bits, "weight_frac": frac, "acc_bits": 62, "out_bits": out_bits}
-        if L.activation in ("sigmoid", "tanh"):
-            doc.update(table_bits=table_bits, table_frac=table_bits - 4)
-        else:
-            doc["out_frac"] = out_bits - 4
-        layers.append(doc)
-    plan = Plan.from_dict({"layers": layers})
-    # each layer's safe width depends on the previous layer's reachable codes only
-    for li in range(len(network.layers)):
-        safe = int(quantise(network, plan).layers[li].safe_acc_bits.max())
-        plan = plan.replace(layer=li, acc_bits=min(max(safe, 1), 62))
-    return plan.check(network)
-
-
 def exact_sums(emulation: Emulation, layer: int) -> np.ndarray:
     """The exact sums ``s`` (before the accumulator, N x n_out int64) of one layer.
 
@@ -492,7 +471,7 @@ class Session(t.HasTraits):
         #: how long a browser change waits for newer ones before it is computed
         self.coalesce_seconds = coalesce_seconds
         super().__init__(
-            plan=(plan if plan is not None else default_plan(network)).check(network),
+            plan=(plan if plan is not None else default_plan(network, [self._image, self._samples])).check(network),
             slice_red=mid, slice_green=mid, slice_blue=mid,
         )  # fmt: skip
         self.observe(self._changed, names=["plan", "slice_red", "slice_green", "slice_blue", "full_resolution"])
@@ -658,7 +637,7 @@ class Session(t.HasTraits):
 
     def _compute(self, gen: int) -> SessionResult:
         net, plan = self.network, self.plan
-        quantise(net, plan)  # raises for a plan the kernel refuses
+        build_integer_network(net, plan)  # raises for a plan the kernel refuses
         image = None
         if self._image is not None:
             image = self._part("image", (plan, self.full_resolution), lambda: self._image_part(plan))
@@ -679,7 +658,7 @@ class Session(t.HasTraits):
             raise ValueError("a session needs an image or samples for a network without 3 inputs")
         key = (plan, self.full_resolution)
         neurons = self._part("neurons", key, lambda: _neuron_results(net, emus, self.bins))
-        desc = tuple(L.describe() for L in quantise(net, plan).layers)
+        desc = tuple(L.describe() for L in build_integer_network(net, plan).layers)
         return SessionResult(plan, gen, tuple(net.classes), image, samples, slices, cube, neurons, data_name, desc)
 
     def _image_part(self, plan: Plan) -> ImageResult:

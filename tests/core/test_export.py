@@ -29,7 +29,7 @@ from fxnet_widgets.core.export import (  # noqa: E402
 )
 from fxnet_widgets.core.fileio import FileFormatError  # noqa: E402
 from fxnet_widgets.core.images import save_png  # noqa: E402
-from fxnet_widgets.core.kernel import emulate, quantise  # noqa: E402
+from fxnet_widgets.core.kernel import build_integer_network, emulate  # noqa: E402
 from fxnet_widgets.core.network import Network  # noqa: E402
 from fxnet_widgets.core.plan import Plan  # noqa: E402
 
@@ -56,7 +56,7 @@ def test_round_trip_reproduces_the_integer_network(tmp_path: Path, case: str) ->
     net, plan, codes = ROUND_TRIP[case]
     export(net, plan, tmp_path / "out", vectors=codes)
     back = read_export(tmp_path / "out")
-    intnet = quantise(net, plan)
+    intnet = build_integer_network(net, plan)
     assert len(back.layers) == len(intnet.layers)
     for got, want in zip(back.layers, intnet.layers):
         np.testing.assert_array_equal(got.weights, want.q_w)
@@ -122,7 +122,7 @@ def test_manifest_lists_every_file_with_its_hash(tmp_path: Path) -> None:
     assert L1["table"]["address_offset"] == 32  # offset binary: address = index + 2^(T-1) (semantics.md step 5)
     assert L1["plan"] == plan.layers[0].to_dict()
     n0 = L1["neurons"][0]
-    assert n0["weights"] == quantise(net, plan).layers[0].q_w[0].tolist()
+    assert n0["weights"] == build_integer_network(net, plan).layers[0].q_w[0].tolist()
     assert (n0["table_file"], n0["shift"], n0["acc_bits"]) == ("tables/layer1_table.memh", 5 + 8 - 3, 18)
 
 
@@ -130,7 +130,7 @@ def test_table_image_format(tmp_path: Path) -> None:
     net, plan = _small()
     export(net, plan, tmp_path / "out")
     lines = (tmp_path / "out" / "tables" / "layer1_table.memh").read_text().splitlines()
-    table = quantise(net, plan).layers[0].table
+    table = build_integer_network(net, plan).layers[0].table
     # IEEE 1364-2005 17.2.9: // comments allowed; one hex word per line in address order
     assert lines[0].startswith("// fxnet table of layer 1 (tanh): 64 words of 5 b signed")
     assert len(lines) == 1 + 64

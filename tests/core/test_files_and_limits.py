@@ -195,6 +195,6 @@ def test_int64_proof_refuses_impossible_plans():
     # the worst case cannot exceed int64 within the contract's limits; the proof still runs:
     net = fw.Network.from_layers([(np.full((1, 4096), 1e10), [0.0], "identity")], input_bits=16)
     plan = fw.Plan.uniform(net, weight_bits=32, weight_frac=0, acc_bits=62, out_bits=16, out_frac=0)
-    q = fw.quantise(net, plan)
+    q = fw.build_integer_network(net, plan)
     # 4096 * (2^31 - 1) * (2^16 - 1) < 2^63: the largest sum the limits allow
     assert q.layers[0].sum_max[0] == 4096 * (2**31 - 1) * (2**16 - 1) < 2**63

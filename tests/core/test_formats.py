@@ -9,8 +9,8 @@ from fxnet_widgets.core.formats import (
     ROUNDINGS,
     bits_for_range,
     q_notation,
-    quantise,
     round_float,
+    round_to_codes,
     shift_round,
     wrap,
 )
@@ -28,14 +28,14 @@ HAND = {
 @pytest.mark.parametrize("value", sorted(HAND))
 @pytest.mark.parametrize("mode", ROUNDINGS)
 def test_hand_computed_rounding(value, mode):
-    assert quantise(np.array([value]), 8, 0, rounding=mode).tolist() == [HAND[value][mode]]
+    assert round_to_codes(np.array([value]), 8, 0, rounding=mode).tolist() == [HAND[value][mode]]
 
 
 def test_half_even_rounds_up_then_wraps():
     # 7.97 * 16 = 127.52 -> half-even 128 -> does not fit Q3.4 (8 b) -> wraps to -128
     # (two's-complement modulo 2^8; worked example of the issue, common practice)
-    assert quantise(np.array([7.97]), 8, 4, overflow="wrap").tolist() == [-128]
-    assert quantise(np.array([7.97]), 8, 4, overflow="saturate").tolist() == [127]
+    assert round_to_codes(np.array([7.97]), 8, 4, overflow="wrap").tolist() == [-128]
+    assert round_to_codes(np.array([7.97]), 8, 4, overflow="saturate").tolist() == [127]
 
 
 def test_numpy_round_agrees_with_half_even():
@@ -89,7 +89,7 @@ def test_q_notation_excludes_sign():
     assert q_notation(10, 5) == "Q4.5 (10 b)"
     assert q_notation(8, 8, signed=False) == "UQ0.8 (8 b)"
     # Q15: 24576 stands for 0.75 (Microchip Q15 docs)
-    assert quantise(np.array([0.75, -1.0, 0.999969482]), 16, 15).tolist() == [24576, -32768, 32767]
+    assert round_to_codes(np.array([0.75, -1.0, 0.999969482]), 16, 15).tolist() == [24576, -32768, 32767]
 
 
 # --- reference libraries -------------------------------------------------------------
@@ -113,7 +113,7 @@ def test_against_fxpmath(mode, fxp_mode, overflow):
     from fxpmath import Fxp
 
     ref = Fxp(VALUES, signed=True, n_word=10, n_frac=5, rounding=fxp_mode, overflow=overflow).val
-    ours = quantise(VALUES, 10, 5, rounding=mode, overflow=overflow)
+    ours = round_to_codes(VALUES, 10, 5, rounding=mode, overflow=overflow)
     assert len(VALUES) >= 100_000
     np.testing.assert_array_equal(ours, np.asarray(ref, dtype=np.int64))
 
@@ -124,7 +124,7 @@ def test_against_apytypes(mode, overflow):
     # apytypes (PyPI) documentation: QuantizationMode TO_NEG (floor), TO_ZERO (trunc),
     # TIES_POS (half-up), TIES_AWAY, TIES_EVEN; OverflowMode WRAP / SAT. Its from_float always
     # rounds ties away and wraps, so convert exactly (60 fraction bits) then cast twice:
-    # quantise with the mode first, then apply the overflow at the target width.
+    # round_to_codes with the mode first, then apply the overflow at the target width.
     import apytypes as apy
 
     qm = {
@@ -139,7 +139,7 @@ def test_against_apytypes(mode, overflow):
     step = wide.cast(int_bits=12, frac_bits=5, quantization=qm, overflow=apy.OverflowMode.WRAP)
     final = step.cast(int_bits=5, frac_bits=5, quantization=apy.QuantizationMode.TO_NEG, overflow=om)
     ref = np.rint(np.asarray(final.to_numpy()) * 32).astype(np.int64)
-    ours = quantise(VALUES, 10, 5, rounding=mode, overflow=overflow)
+    ours = round_to_codes(VALUES, 10, 5, rounding=mode, overflow=overflow)
     np.testing.assert_array_equal(ours, ref)
 
 

@@ -32,7 +32,7 @@ def test_hand_computed_pixel_331_sigmoid():
     net = hand_net()
     r = fw.emulate(net, hand_plan(net), np.array([[200, 100, 50]]))
     # q_w = round(w * 32): [[16, -8, 4], [32, 0, -32], [-24, 16, 8]]
-    q = kernel.quantise(net, hand_plan(net))
+    q = kernel.build_integer_network(net, hand_plan(net))
     assert q.layers[0].q_w.tolist() == [[16, -8, 4], [32, 0, -32], [-24, 16, 8]]
     # q_b = round(b * 2^13): 819.2 -> 819, -1638.4 -> -1638, 2457.6 -> 2458
     assert q.layers[0].q_b.tolist() == [819, -1638, 2458]
@@ -58,7 +58,7 @@ def test_operation_count_331():
     # a 3-3-1 network per pixel: 12 multiplications, 12 additions (biases included), 4 tables
     # (common practice: n_in products and n_in additions per neuron with its bias)
     net = hand_net()
-    assert kernel.quantise(net, hand_plan(net)).operation_counts() == {
+    assert kernel.build_integer_network(net, hand_plan(net)).operation_counts() == {
         "multiplications": 12,
         "additions": 12,
         "tables": 4,
@@ -71,7 +71,7 @@ def test_sigmoid_table_against_scipy_expit(sample):
     from scipy.special import expit  # scipy docs: expit(x) = 1/(1+exp(-x))
 
     net = hand_net()
-    q = kernel.quantise(net, hand_plan(net, table_sample=sample))
+    q = kernel.build_integer_network(net, hand_plan(net, table_sample=sample))
     L = q.layers[0]
     a = np.arange(L.index_min, L.index_max + 1)
     t = kernel.table_inputs(len(a), L.index_min, 9, L.shift, "floor", sample)
@@ -105,7 +105,7 @@ def test_sigmoid_table_against_scipy_expit(sample):
 def test_tanh_table_against_numpy():
     # numpy.tanh as the outside reference; tanh out_frac defaults to out_bits - 1
     net = fw.Network.from_layers([(W1, B1, "tanh"), (W2, B2, "sigmoid")])
-    q = kernel.quantise(net, hand_plan(net, out_bits=8))
+    q = kernel.build_integer_network(net, hand_plan(net, out_bits=8))
     L = q.layers[0]
     t = kernel.table_inputs(len(L.table), L.index_min, 9, L.shift, "floor", "edge")
     exact = np.tanh(t) * 128
@@ -118,7 +118,7 @@ def test_adjacent_sigmoid_entries_differ_by_at_most_a_quarter_step():
     # sigma has max slope 1/4 (references.md): entries one address apart differ by at most
     # step/4 in value plus one LSB of rounding
     net = hand_net()
-    L = kernel.quantise(net, hand_plan(net, table_frac=2)).layers[0]
+    L = kernel.build_integer_network(net, hand_plan(net, table_frac=2)).layers[0]
     diffs = np.abs(np.diff(L.table.astype(np.int64)))
     assert diffs.max() <= 256 * (2**-2) / 4 + 1
 
@@ -129,7 +129,7 @@ def test_safe_width_worked_value(q):
     # references.md: 3 products of uint8 x int8 span -97920 .. 97155, i.e. 18 bits
     net = fw.Network.from_layers([([[float(q)] * 3], [0.0], "identity")])
     plan = fw.Plan.uniform(net, weight_bits=8, weight_frac=0, acc_bits=30, out_bits=16, out_frac=0)
-    L = kernel.quantise(net, plan).layers[0]
+    L = kernel.build_integer_network(net, plan).layers[0]
     assert (L.safe_min[0], L.safe_max[0]) == ((0, 97155) if q > 0 else (-97920, 0))
     assert L.safe_acc_bits.tolist() == [18]
 
@@ -144,7 +144,7 @@ def test_safe_width_is_tight_by_corners():
         net = fw.Network.from_layers([(w, b, "relu"), (rng.normal(0, 1, (1, 2)), [0.0], "sigmoid")])
         corners = np.array(list(itertools.product([0, 255], repeat=3)))
         base = dict(weight_bits=8, weight_frac=4, out_bits=8, out_frac=4, table_bits=10, table_frac=5)
-        safe = kernel.quantise(net, fw.Plan.uniform(net, acc_bits=40, **base)).layers[0].safe_acc_bits
+        safe = kernel.build_integer_network(net, fw.Plan.uniform(net, acc_bits=40, **base)).layers[0].safe_acc_bits
         for j in range(2):
             A = int(safe[j])
             r = fw.emulate(net, fw.Plan.uniform(net, acc_bits=A, **base), corners)
@@ -303,7 +303,7 @@ def test_plan_equality_and_repr_round_trip():
 
 def test_full_scale_folds_factor_and_says_so():
     net = fw.Network.from_layers([(W1, B1, "sigmoid"), (W2, B2, "sigmoid")], input_scale="full")
-    q = kernel.quantise(net, hand_plan(net))
+    q = kernel.build_integer_network(net, hand_plan(net))
     # w * 256/255 before quantising: 0.5 * 256/255 * 32 = 16.06 -> 16; 1.0 -> 32.13 -> 32
     assert q.layers[0].q_w[0, 0] == round(0.5 * 256 / 255 * 32)
     assert any("full" in n for n in q.notes)

@@ -24,7 +24,7 @@ def test_stage_formats_of_the_hand_network():
     # with Fo = 8 (semantics.md, step 7 defaults)
     net = hand_network(classes=["other", "ripe"])
     plan = fw.Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=18, table_bits=14, table_frac=9, out_bits=8)
-    L = kernel.quantise(net, plan).layers[0]
+    L = kernel.build_integer_network(net, plan).layers[0]
     assert L.inputs == CodeFormat(8, 0, 255)
     assert L.address == CodeFormat(9, -8192, 8191)
     assert L.output == CodeFormat(8, 0, 255, signed=False)
@@ -34,7 +34,7 @@ def test_stage_formats_of_the_hand_network():
     assert (L.index_min, L.index_max, L.out_frac, L.code_min) == (-8192, 8191, 8, L.reachable.lo)
     assert (L.sum_min, L.safe_max) == (L.sums.lo, L.safe.hi)
     # layer 2 reads layer 1's reachable codes
-    assert kernel.quantise(net, plan).layers[1].inputs == CodeFormat(8, L.reachable.lo, L.reachable.hi)
+    assert kernel.build_integer_network(net, plan).layers[1].inputs == CodeFormat(8, L.reachable.lo, L.reachable.hi)
 
 
 def test_event_names_in_the_contract_order():

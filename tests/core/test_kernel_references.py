@@ -39,6 +39,6 @@ def test_kernel_equals_outside_fixed_point_library(library):
     for net, plan, codes in _cases():
         r = fw.emulate(net, plan, codes)
         overflowed += int(r.event_totals()["acc_overflow"])
-        got = run(kernel.quantise(net, plan), codes)[:, 0]
+        got = run(kernel.build_integer_network(net, plan), codes)[:, 0]
         np.testing.assert_array_equal(got, r.out_codes[:, 0], err_msg=f"{library} on {plan!r}")
     assert overflowed > 0  # the narrow plan exercises the accumulator wrap

@@ -68,7 +68,7 @@ def test_neuron_sums_are_the_exact_integer_sums():
     codes = np.random.default_rng(7).integers(0, 256, (5000, 3))
     plan = fw.Plan.uniform(net, weight_bits=8, weight_frac=4, acc_bits=10, out_bits=8, table_bits=10, table_frac=6)
     r = fw.emulate(net, plan, codes)
-    q = kernel.quantise(net, plan)
+    q = kernel.build_integer_network(net, plan)
     u = codes.astype(np.int64)
     for li, L in enumerate(q.layers):
         # s = q_b + sum_i q_w[j, i] * u_i on exact integers (the contract's step 3)

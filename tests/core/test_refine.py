@@ -14,7 +14,7 @@ from scipy.optimize import check_grad
 
 from fxnet_widgets.core.formats import ROUNDINGS
 from fxnet_widgets.core.images import read_image
-from fxnet_widgets.core.kernel import emulate, quantise
+from fxnet_widgets.core.kernel import build_integer_network, emulate
 from fxnet_widgets.core.network import Network
 from fxnet_widgets.core.plan import LayerPlan, Plan
 from fxnet_widgets.core.refine import Refinement, exact_network, refine
@@ -48,7 +48,7 @@ def tiny():
 def check_exact(r: Refinement):
     """The plan's rounding is the identity on the refined network (kernel, Fraction and fxpmath)."""
     net, plan = r.network, r.plan
-    ints = quantise(net, plan)
+    ints = build_integer_network(net, plan)
     in_frac = net.input_bits
     for L, IL, lp in zip(net.layers, ints.layers, plan.layers):
         assert IL.weight_clip.sum() == 0 and IL.bias_clip.sum() == 0
@@ -64,7 +64,7 @@ def check_exact(r: Refinement):
             assert Fraction(b) * Fraction(2) ** acc_frac == q
         in_frac = IL.out_frac
     for mode in ROUNDINGS:  # every rounding mode of the contract reproduces the same integers
-        other = quantise(net, plan.replace(weight_round=mode))
+        other = build_integer_network(net, plan.replace(weight_round=mode))
         for a, b in zip(ints.layers, other.layers):
             assert np.array_equal(a.q_w, b.q_w) and np.array_equal(a.q_b, b.q_b)
 
@@ -138,7 +138,7 @@ def test_integer_pass_agrees_with_the_kernel_after_random_changes(demo):
     net, plan, codes, _ = demo
     p = narrow(plan, 6, 1, 5, 2)
     sub = codes[:3000]
-    intnet = quantise(net, p)
+    intnet = build_integer_network(net, p)
     samples = Samples(sub, np.zeros(sub.shape[0], dtype=np.int64))
     ip = IntegerPass(intnet, samples, [L.q_w for L in intnet.layers], [L.q_b for L in intnet.layers])
     rng = np.random.default_rng(1)
@@ -201,7 +201,7 @@ def test_straight_through_gradient_is_the_relaxed_one_at_a_fine_plan():
     plan = Plan.uniform(net, weight_bits=30, weight_frac=24, acc_bits=62, out_bits=16, table_bits=20,
                         table_frac=15)
     codes = rng.integers(0, 256, (500, 3))
-    intnet = quantise(net, plan)
+    intnet = build_integer_network(net, plan)
     samples = Samples(codes, np.zeros(500, dtype=np.int64))
     obj = Objective(rng.uniform(0.1, 0.9, (1, samples.distinct)), samples.counts / samples.total, 0.0, 1.0)
     params = [a for L in net.layers for a in (L.weights, L.bias)]
@@ -217,7 +217,7 @@ def test_no_gain_keeps_plain_rounding_with_a_note(demo):
     r = refine(net, plan, codes[:2000], method="rounding", holdout_fraction=0, steps=50)
     assert r.before.errors == 0 and not r.improved
     assert any("no gain" in n for n in r.notes)
-    ints, orig = quantise(r.network, plan), quantise(net, plan)
+    ints, orig = build_integer_network(r.network, plan), build_integer_network(net, plan)
     for a, b in zip(ints.layers, orig.layers):
         assert np.array_equal(a.q_w, b.q_w) and np.array_equal(a.q_b, b.q_b)
     assert r.after.holdout_errors is None
@@ -336,7 +336,7 @@ def test_integer_pass_agrees_with_the_kernel_with_overflows_and_clamps(demo, ove
     assert e0.event_totals()["acc_overflow"] > 0 and e0.event_totals()["table_high"] > 0
     r = refine(net, p, sub, steps=300, holdout_fraction=0)  # refine raises if its count and the kernel's differ
     assert r.after.errors <= r.before.errors
-    intnet = quantise(net, p)
+    intnet = build_integer_network(net, p)
     samples = Samples(sub, np.zeros(sub.shape[0], dtype=np.int64))
     ip = IntegerPass(intnet, samples, [L.q_w for L in intnet.layers], [L.q_b for L in intnet.layers])
     ip.set(0, 0, 3, int(ip.q_b[0][0]) + 700)

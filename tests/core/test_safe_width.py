@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 
 import fxnet_widgets as fw
 from fxnet_widgets.core.formats import ROUNDINGS
-from fxnet_widgets.core.kernel import quantise
+from fxnet_widgets.core.kernel import build_integer_network
 
 ACTS = ["sigmoid", "tanh", "relu", "identity"]
 
@@ -49,7 +49,7 @@ def _with_acc(plan, widths):
 @given(cases())
 def test_safe_width_never_overflows_or_clamps_the_bias_and_one_bit_less_breaks(case):
     net, plan, inputs = case
-    safe = [int(L.safe_acc_bits.max()) for L in quantise(net, plan).layers]
+    safe = [int(L.safe_acc_bits.max()) for L in build_integer_network(net, plan).layers]
     at_safe = fw.emulate(net, _with_acc(plan, safe), inputs)
     for li, ev in enumerate(at_safe.events):
         # the contract's promise, over every input: no overflow, no bias clamp at the safe width
@@ -58,7 +58,7 @@ def test_safe_width_never_overflows_or_clamps_the_bias_and_one_bit_less_breaks(c
     # (every input at its smallest or largest code by the weight's sign) or is the bias itself. One bit
     # less must then break the neuron that needs the most bits (interval arithmetic, common practice)
     if safe[0] > 1:
-        layer1 = quantise(net, plan).layers[0]
+        layer1 = build_integer_network(net, plan).layers[0]
         widest = int(np.argmax(layer1.safe_acc_bits))
         narrower = fw.emulate(net, _with_acc(plan, [safe[0] - 1, *safe[1:]]), inputs).events[0]
         assert narrower["acc_overflow"][widest] > 0 or narrower["bias_clip"][widest] > 0

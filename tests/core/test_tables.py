@@ -1,7 +1,7 @@
 """Activation tables against an exact outside reference (contract step 6).
 
 The reference is ``fxref.table_entry``: mpmath at 50 digits (mpmath docs), written
-without the package's table builder. Every table is built through ``quantise``, the
+without the package's table builder. Every table is built through ``build_integer_network``, the
 path the exports, golden vectors and widgets read.
 """
 
@@ -23,7 +23,7 @@ def _layer(activation: str, input_bits: int = 8, **fields):
     net = fw.Network.from_layers([([[1.0]], [0.0], activation)], input_bits=input_bits)
     plan_fields = dict(weight_bits=8, weight_frac=4, acc_bits=40, table_bits=8, table_frac=4, out_bits=8)
     plan_fields.update(fields)
-    return kernel.quantise(net, fw.Plan.uniform(net, **plan_fields)).layers[0]
+    return kernel.build_integer_network(net, fw.Plan.uniform(net, **plan_fields)).layers[0]
 
 
 def _reference(L) -> list[int]:
@@ -197,5 +197,5 @@ def test_exported_rom_images_equal_the_exact_reference(tmp_path):
     ))  # fmt: skip
     export(net, plan, tmp_path / "out")
     back = read_export(tmp_path / "out")
-    for got, L in zip(back.layers, kernel.quantise(net, plan).layers):
+    for got, L in zip(back.layers, kernel.build_integer_network(net, plan).layers):
         assert np.asarray(got.table).tolist() == _reference(L)

@@ -18,7 +18,7 @@ from hypothesis import strategies as st
 
 import fxnet_widgets as fw
 from fxnet_widgets.core.formats import ROUNDINGS, signed_range
-from fxnet_widgets.core.kernel import post_accumulate, quantise
+from fxnet_widgets.core.kernel import build_integer_network, post_accumulate
 from fxnet_widgets.core.network import activate
 
 HIDDEN = ["sigmoid", "tanh", "relu", "identity"]
@@ -72,7 +72,7 @@ def test_wrap_and_saturate_agree_without_overflow(data):
     codes = pixels(data.draw)
     wrap = fw.emulate(net, plan.replace(acc_overflow="wrap"), codes)
     sat = fw.emulate(net, plan.replace(acc_overflow="saturate"), codes)
-    intnet = quantise(net, plan)
+    intnet = build_integer_network(net, plan)
     # per sample: did any exact sum (step 3 of semantics.md, recomputed here) leave the A-bit range?
     clean = np.ones(len(codes), dtype=bool)
     u = codes.astype(np.int64)
@@ -112,7 +112,7 @@ def error_bound(net: fw.Network, plan: fw.Plan, result) -> np.ndarray:
     e = np.zeros((result.n, net.n_in))
     x_hat = result.inputs.astype(np.float64) / 2.0**net.input_bits
     in_frac = net.input_bits
-    for L, lp, codes, iL in zip(net.layers, plan.layers, result.codes, quantise(net, plan).layers):
+    for L, lp, codes, iL in zip(net.layers, plan.layers, result.codes, build_integer_network(net, plan).layers):
         r = 0.5 if lp.weight_round.startswith("half") else 1.0
         qw, qb = 2.0**-lp.weight_frac, 2.0 ** -(in_frac + lp.weight_frac)
         dz = r * qw * np.abs(x_hat).sum(axis=1, keepdims=True) + e @ np.abs(L.weights).T + r * qb
@@ -153,7 +153,7 @@ def test_generous_widths_decide_like_float_outside_the_error_bound(case):
         if L.activation != "relu":
             assume(ev["table_low"].sum() == 0)
     bound = error_bound(net, plan, result)
-    fixed_value = result.out_codes[:, 0] / 2.0 ** quantise(net, plan).layers[-1].out_frac
+    fixed_value = result.out_codes[:, 0] / 2.0 ** build_integer_network(net, plan).layers[-1].out_frac
     y = result.float_out[:, 0]
     assert np.all(np.abs(fixed_value - y) <= bound + 1e-12)  # 1e-12: float64 round-off of the reference
     far = np.abs(y - net.threshold) > bound
@@ -183,7 +183,7 @@ def test_more_table_bits_over_the_same_range_never_worsen_the_bound(act, t_bits,
         lp = {"weight_bits": 16, "weight_frac": 6, "acc_bits": 40, "out_bits": out_bits, "table_bits": t_bits + extra,
               "table_frac": t_frac + extra, "index_round": idx_round, "table_round": tab_round}  # fmt: skip
         plan = fw.Plan.from_dict({"layers": [lp]})
-        layer = quantise(net, plan).layers[0]
+        layer = build_integer_network(net, plan).layers[0]
         k = layer.shift
         # exact sums whose index is not clamped (for both tables: the range is the same)
         lo = (layer.index_min + 1) * 2.0**k
@@ -205,7 +205,7 @@ def test_safe_accumulator_width_never_overflows(data):
     count("kernel: safe accumulator width")
     net = data.draw(networks())
     plan = plan_for(data.draw, net, acc_bits=62)
-    intnet = quantise(net, plan)
+    intnet = build_integer_network(net, plan)
     safe = [int(L.safe_acc_bits.max()) for L in intnet.layers]
     assume(max(safe) <= 62)
     plan = fw.Plan(tuple(lp.__class__(**{**lp.to_dict(), "acc_bits": a}) for lp, a in zip(plan.layers, safe)))
@@ -217,7 +217,7 @@ def test_safe_accumulator_width_never_overflows(data):
     # the contract promises neither an accumulator overflow nor a bias clamp at this width (semantics.md,
     # "Guaranteed-safe accumulator width": the interval holds the raw bias too)
     for li, (L, ev, lo, hi) in enumerate(
-        zip(quantise(net, plan).layers, result.events, result.observed_min, result.observed_max)
+        zip(build_integer_network(net, plan).layers, result.events, result.observed_min, result.observed_max)
     ):
         assert np.all(ev["bias_clip"] == 0), f"layer {li + 1}"
         assert np.all(ev["acc_overflow"] == 0), f"layer {li + 1}"

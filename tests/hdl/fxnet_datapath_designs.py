@@ -17,7 +17,7 @@ import itertools
 import numpy as np
 
 from fxnet_widgets.core.formats import ROUNDINGS
-from fxnet_widgets.core.kernel import quantise
+from fxnet_widgets.core.kernel import build_integer_network
 from fxnet_widgets.core.network import ACTIVATIONS, Network
 from fxnet_widgets.core.plan import LayerPlan, Plan
 
@@ -71,14 +71,14 @@ def random_case(seed: int) -> tuple[Network, Plan, np.ndarray]:
     while True:
         net, docs = _draw(rng, wide=seed % 4 == 3)
         try:
-            safe = quantise(net, Plan(tuple(LayerPlan.from_dict(d) for d in docs)))
+            safe = build_integer_network(net, Plan(tuple(LayerPlan.from_dict(d) for d in docs)))
         except ValueError:  # the exact sum does not fit int64: draw again
             continue
         for d, L in zip(docs, safe.layers):
             d["acc_bits"] = int(min(62, max(1, int(L.safe_acc_bits.max()) - int(rng.integers(0, 5)))))
         try:
             plan = Plan(tuple(LayerPlan.from_dict(d) for d in docs))
-            quantise(net, plan)
+            build_integer_network(net, plan)
         except ValueError:
             continue
         return net, plan, _codes(rng, net.n_in, net.input_bits)

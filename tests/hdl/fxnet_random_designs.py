@@ -18,7 +18,7 @@ import numpy as np
 
 from fxnet_widgets.core.formats import ROUNDINGS
 from fxnet_widgets.core.images import read_image
-from fxnet_widgets.core.kernel import quantise
+from fxnet_widgets.core.kernel import build_integer_network
 from fxnet_widgets.core.network import ACTIVATIONS, Network
 from fxnet_widgets.core.plan import LayerPlan, Plan
 
@@ -72,7 +72,7 @@ def random_design(seed: int, n_vectors: int = 300) -> tuple[Network, Plan, np.nd
         docs.append(doc)
         in_frac = out_frac
     plan = Plan(tuple(LayerPlan.from_dict(d) for d in docs))
-    safe = quantise(net, plan)
+    safe = build_integer_network(net, plan)
     for li, L in enumerate(safe.layers):
         docs[li]["acc_bits"] = int(min(62, max(2, int(L.safe_acc_bits.max()) - int(rng.integers(0, 4)))))
     plan = Plan(tuple(LayerPlan.from_dict(d) for d in docs))

@@ -10,7 +10,7 @@ import pytest
 from fxnet_random_designs import extreme_designs, random_design
 
 from fxnet_widgets.core.export import export
-from fxnet_widgets.core.kernel import quantise
+from fxnet_widgets.core.kernel import build_integer_network
 
 CASES = {"random-1": random_design(1, 10), "random-4": random_design(4, 10)} | extreme_designs()
 
@@ -55,7 +55,7 @@ def test_c_header_holds_the_integer_network(tmp_path: Path, case: str) -> None:
         pytest.skip("no C compiler (cc/gcc)")
     net, plan, codes = CASES[case]
     export(net, plan, tmp_path / "hw", vectors=codes)
-    intnet = quantise(net, plan)
+    intnet = build_integer_network(net, plan)
     src = tmp_path / "main.c"
     src.write_text(_program(intnet))
     # ISO C99 with <stdint.h>; -Wno-unused-const-variable: a header's static tables may go unused

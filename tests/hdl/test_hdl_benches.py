@@ -20,7 +20,7 @@ from fxnet_random_designs import demo_design, extreme_designs, random_design
 
 from fxnet_widgets.core.export import export
 from fxnet_widgets.core.formats import shift_round
-from fxnet_widgets.core.kernel import emulate, quantise
+from fxnet_widgets.core.kernel import build_integer_network, emulate
 
 RANDOM_SEEDS = range(24)
 RUNNERS = {"verilog": run_verilog, "vhdl": run_vhdl}
@@ -77,7 +77,7 @@ def test_random_designs_cover_the_contract() -> None:
     left = right = table_clamp = 0
     for seed in RANDOM_SEEDS:
         net, plan, codes = random_design(seed)
-        intnet = quantise(net, plan)
+        intnet = build_integer_network(net, plan)
         em = emulate(net, plan, codes)
         for li, L in enumerate(intnet.layers):
             seen["activation"].add(L.activation)
@@ -97,7 +97,7 @@ def test_random_designs_cover_the_contract() -> None:
 
 def _used_address(net, plan, codes) -> tuple[int, int]:
     """(address, word) of the layer-1 table entry that vector 0, neuron 0 reads."""
-    L = quantise(net, plan).layers[0]
+    L = build_integer_network(net, plan).layers[0]
     s_a = emulate(net, plan, codes).acc[0][:1, :1]
     a = int(np.clip(shift_round(s_a, L.shift, L.plan.index_round), L.index_min, L.index_max)[0, 0])
     addr = a - L.index_min

@@ -14,7 +14,7 @@ import ipywidgets as w
 import pytest
 from widget_checks import assert_explorer_matches_kernel
 
-from fxnet_widgets.core.kernel import quantise
+from fxnet_widgets.core.kernel import build_integer_network
 from fxnet_widgets.widgets import Explorer
 
 
@@ -80,7 +80,7 @@ def test_a_plan_change_from_code_writes_slider_and_box_the_same_value(explorer, 
     sent.clear()
     c.set_safe()
     # "all layers": the controls show layer 1's width
-    safe = int(quantise(fruit_net, explorer.plan).layers[0].safe_acc_bits.max())
+    safe = int(build_integer_network(fruit_net, explorer.plan).layers[0].safe_acc_bits.max())
     assert _values_sent(sent, c.sliders["acc_bits"]) == [safe]
     assert _values_sent(sent, c.boxes["acc_bits"]) == [safe]
     sent.clear()

@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 from widget_checks import assert_explorer_matches_kernel
 
-from fxnet_widgets.core.kernel import emulate, quantise
+from fxnet_widgets.core.kernel import build_integer_network, emulate
 from fxnet_widgets.core.plan import CHOICES
 from fxnet_widgets.widgets import Explorer
 from fxnet_widgets.widgets.controls import CHOICE_FIELDS, SLIDER_FIELDS
@@ -95,7 +95,7 @@ def test_safe_button_sets_guaranteed_width_and_removes_overflow(explorer, fruit_
     c.sliders["acc_bits"].value = 10
     assert explorer.session.result.event_totals()["acc_overflow"] > 0
     c.safe_button.click()
-    intnet = quantise(fruit_net, explorer.plan)
+    intnet = build_integer_network(fruit_net, explorer.plan)
     for L, lp in zip(intnet.layers, explorer.plan.layers):
         assert lp.acc_bits == int(L.safe_acc_bits.max())
     # the contract: at the guaranteed-safe width no input can overflow (semantics.md)

@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from widget_checks import decode_classes, slice_input
 
-from fxnet_widgets.core.kernel import emulate, quantise
+from fxnet_widgets.core.kernel import build_integer_network, emulate
 from fxnet_widgets.widgets import (
     CubePanel,
     EventsPlot,
@@ -94,7 +94,7 @@ def test_exact_sums_are_the_accumulator_before_wrapping(fruit_net, fruit_plan, b
         # two's complement wrap, by definition: ((s + 2^(A-1)) mod 2^A) - 2^(A-1) (common practice)
         wrapped = ((s + 2 ** (a - 1)) % 2**a) - 2 ** (a - 1)
         assert np.array_equal(wrapped, emu.acc[li].reshape(emu.n, -1))
-        L = quantise(fruit_net, plan).layers[li]
+        L = build_integer_network(fruit_net, plan).layers[li]
         assert (s >= np.array(L.sum_min)).all() and (s <= np.array(L.sum_max)).all()
 
 
@@ -146,7 +146,7 @@ def test_cube_panel_counts_grid_disagreements(fruit_net, fruit_plan):
 
 def test_default_plan_is_safe_and_valid(fruit_net):
     plan = default_plan(fruit_net)
-    intnet = quantise(fruit_net, plan)
+    intnet = build_integer_network(fruit_net, plan)
     assert all(L.plan.acc_bits == int(L.safe_acc_bits.max()) for L in intnet.layers)
     assert all(int(L.weight_clip.sum()) == 0 for L in intnet.layers)
 

@@ -35,7 +35,7 @@ from typing import Any
 import numpy as np
 
 from ..formats import round_float
-from ..kernel import emulate, quantise
+from ..kernel import build_integer_network, emulate
 from ..network import Network
 from ..plan import INT_LIMITS, Plan
 from .metrics import error_metrics
@@ -68,7 +68,7 @@ def generous_plan(network: Network, plan: Plan, stage: str, layer: int | None = 
     if layer is not None and (isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < n):
         raise ValueError(f"layer must be None or an index from 0 to {n - 1}, not {layer!r}")
     which = range(n) if layer is None else [layer]
-    intnet = quantise(network, plan)
+    intnet = build_integer_network(network, plan)
     layers = list(plan.layers)
     amax = INT_LIMITS["acc_bits"][1]
     for i in which:

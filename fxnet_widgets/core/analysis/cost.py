@@ -23,7 +23,7 @@ from typing import Any
 
 import numpy as np
 
-from ..kernel import quantise
+from ..kernel import build_integer_network
 from ..network import Network
 from ..plan import Plan
 from .csd import csd_nonzero
@@ -277,7 +277,7 @@ def hardware_cost(
     )
     block_bits = _positive_int(block_bits, "block_bits")
     stages = _positive_int(pipeline_stages, "pipeline_stages", 0)
-    intnet = quantise(network, plan)
+    intnet = build_integer_network(network, plan)
     in_bits, in_signed = network.input_bits, False
     layers = []
     for L in intnet.layers:

@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from ..kernel import IntegerNetwork, post_accumulate, quantise
+from ..kernel import IntegerNetwork, build_integer_network, post_accumulate
 from ..network import Network
 from ..plan import Plan
 
@@ -86,7 +86,7 @@ def _build_fixed(network: Network, plan: Plan, keep_codes: bool, keep_events: bo
     t0 = time.perf_counter()
     total = _check_cube(network)
     bits, n_in = network.input_bits, network.n_in
-    intnet = quantise(network, plan)
+    intnet = build_integer_network(network, plan)
     size = 1 << total
     slots = [(li, j, e) for li, L in enumerate(intnet.layers) for j in range(L.n_out) for e in LOOKUP_EVENTS]
     if keep_events and len(slots) > 64:

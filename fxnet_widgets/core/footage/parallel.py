@@ -14,7 +14,7 @@ import os
 from collections.abc import Callable
 from typing import Any
 
-from ..analysis.search import _as_executor, _worker_count
+from ..analysis.search.executors import as_executor, worker_count
 from ..network import Network
 from ..plan import Plan
 from .analyse import FootageAnalysis, analyse_footage
@@ -66,8 +66,8 @@ def analyse_footage_split(
         raise ValueError(f"{src}: must announce its frame count to be split over workers, not an unknown count")
     sl = clip.frames
     stop = n if sl.stop is None else min(sl.stop, n)
-    ex = _as_executor(executor)
-    pieces = split_range(sl.start, stop, sl.step, parts or 2 * _worker_count(ex))
+    ex = as_executor(executor)
+    pieces = split_range(sl.start, stop, sl.step, parts or 2 * worker_count(executor))
     if not pieces:
         raise ValueError(f"{src}: frames {sl.start}:{stop}:{sl.step} must hold at least one frame, not 0")
     net_doc, plan_doc = network.to_dict(), plan.to_dict()

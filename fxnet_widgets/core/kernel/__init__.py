@@ -2,7 +2,7 @@
 
 Two parts:
 
-* :func:`quantise` turns a float :class:`~fxnet_widgets.core.network.Network` and
+* :func:`build_integer_network` turns a float :class:`~fxnet_widgets.core.network.Network` and
   a :class:`~fxnet_widgets.core.plan.Plan` into an :class:`IntegerNetwork`: the
   integer weights and biases, shifts, tables, ranges, static events
   (``weight_clip``, ``bias_clip``), the guaranteed-safe accumulator width of
@@ -18,7 +18,7 @@ Modules, one job each:
 ``caches``      the value-keyed caches (:func:`clear_caches`, :func:`cache_stats`)
 ``layers``      the integer network's records (:class:`IntegerLayer`, per-stage formats, event names)
 ``tables``      the one activation-table builder (contract step 6, exact rounding)
-``build``       steps 1-7: :func:`quantise` builds the integer network
+``build``       steps 1-7: :func:`build_integer_network` builds the integer network
 ``accumulate``  steps 4-7 on exact sums (:func:`post_accumulate`)
 ``evaluate``    the fast paths: per-image decomposition, exact sums, one layer's run
 ``emulation``   :func:`emulate` and its result, :class:`Emulation`
@@ -37,7 +37,7 @@ Examples
 """
 
 from .accumulate import post_accumulate
-from .build import quantise
+from .build import build_integer_network
 from .caches import cache_stats, clear_caches
 from .emulation import Emulation, emulate
 from .layers import DATA_EVENTS, EVENT_NAMES, STATIC_EVENTS, Bounds, CodeFormat, IntegerLayer, IntegerNetwork
@@ -52,7 +52,7 @@ __all__ = [
     "IntegerLayer",
     "IntegerNetwork",
     "Emulation",
-    "quantise",
+    "build_integer_network",
     "emulate",
     "post_accumulate",
     "build_table",

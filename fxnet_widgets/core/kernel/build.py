@@ -1,6 +1,6 @@
 """Steps 1-7 of the contract: the float network and a plan become the integer network.
 
-:func:`quantise` rounds and clamps the weights and biases, proves the exact sums fit
+:func:`build_integer_network` rounds and clamps the weights and biases, proves the exact sums fit
 int64, computes every neuron's guaranteed-safe accumulator width, the shift of the
 table index (or output) and the activation tables (one builder: :mod:`.tables`).
 Cached by value.
@@ -19,7 +19,7 @@ from .caches import QUANT_CACHE
 from .layers import Bounds, CodeFormat, IntegerLayer, IntegerNetwork
 from .tables import TableSpec, build_table
 
-__all__ = ["quantise"]
+__all__ = ["build_integer_network"]
 
 _INT64_MAX = (1 << 63) - 1
 
@@ -146,7 +146,7 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
     return IntegerNetwork(network, plan, tuple(layers), network.input_bits, thr, tuple(notes))
 
 
-def quantise(network: Network, plan: Plan) -> IntegerNetwork:
+def build_integer_network(network: Network, plan: Plan) -> IntegerNetwork:
     """The integer network of ``(network, plan)`` (cached by value)."""
     if not isinstance(network, Network):
         raise TypeError(f"network must be a Network, not {type(network).__name__}")

@@ -9,7 +9,7 @@ import numpy as np
 from ..formats import bits_for_range
 from ..network import Network
 from ..plan import Plan
-from .build import quantise
+from .build import build_integer_network
 from .caches import FLOAT_CACHE, LAYER_CACHE, SUM_CACHE
 from .evaluate import LayerOut, Prepared, frozen, layer_sums, prepare, run_layer
 from .layers import DATA_EVENTS, EVENT_NAMES, IntegerLayer, IntegerNetwork
@@ -240,7 +240,7 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
     Emulation
         Image input gives image-shaped arrays.
     """
-    intnet = quantise(network, plan)
+    intnet = build_integer_network(network, plan)
     prep = prepare(codes, network.input_bits, network.n_in)
     outs: list[LayerOut] = []
     prev: LayerOut | None = None

@@ -10,7 +10,7 @@ from typing import Any
 
 import numpy as np
 
-from ..kernel import IntegerNetwork, emulate, quantise
+from ..kernel import IntegerNetwork, build_integer_network, emulate
 from ..network import Network, as_codes
 from ..plan import Plan
 from ._finetune import Objective, finetune, logit_offset
@@ -324,7 +324,7 @@ def refine(
     assert t_train is not None
 
     work, notes = working_network(net)
-    intnet = quantise(work, plan)
+    intnet = build_integer_network(work, plan)
     samples = Samples(train, t_train)
     hold_samples = Samples(hold, t_hold) if before_hold is not None and t_hold is not None else None
     q_w = [np.array(L.q_w) for L in intnet.layers]

@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 
 from ..fileio import atomic_write_json, load_json
-from ..kernel import quantise
+from ..kernel import build_integer_network
 from ..network import Network
 from ..plan import LayerPlan, Plan
 
@@ -229,7 +229,7 @@ def calibration_plans(network: Network, n: int, seed: int) -> list[Plan]:
                 in_frac = doc["out_frac"]
             docs.append(doc)
         plan = Plan(tuple(LayerPlan.from_dict(d) for d in docs))
-        safe = quantise(network, plan)
+        safe = build_integer_network(network, plan)
         for d, q in zip(docs, safe.layers):
             d["acc_bits"] = int(max(2, int(q.safe_acc_bits.max()) - int(rng.integers(0, 3))))
         plans.append(Plan(tuple(LayerPlan.from_dict(d) for d in docs)))

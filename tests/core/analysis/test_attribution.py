@@ -13,7 +13,7 @@ def tight(net):
 
 
 def test_generous_plans_change_only_their_stage(net, tight):
-    intnet = fw.quantise(net, tight)
+    intnet = fw.build_integer_network(net, tight)
     w = generous_plan(net, tight, "weights")
     for a, b in zip(tight.layers, w.layers):
         d = b.weight_frac - a.weight_frac
@@ -24,7 +24,7 @@ def test_generous_plans_change_only_their_stage(net, tight):
     assert [lp.acc_bits for lp in acc.layers] == [max(a.acc_bits, int(L.safe_acc_bits.max()))
                                                   for a, L in zip(tight.layers, intnet.layers)]  # fmt: skip
     t = generous_plan(net, tight, "table address")
-    assert all(L.shift == 0 for L in fw.quantise(net, t).layers)
+    assert all(L.shift == 0 for L in fw.build_integer_network(net, t).layers)
     o = generous_plan(net, tight, "table output")
     assert [lp.out_bits for lp in o.layers] == [16, 16]
     assert o.layers[1].acc_bits == tight.layers[1].acc_bits + 11

@@ -58,7 +58,7 @@ def test_registers_tree_width_and_totals(net):
     assert [L.register_bits for L in c5.layers] == [3 * (40 + 2 * 18), 40 + 2 * 18]
     assert c3.latency == 6 and c5.latency == 10
     sat = plan.replace(acc_bits=10, acc_overflow="saturate")
-    safe = [int(np.max(L.safe_acc_bits)) for L in fw.quantise(net, sat).layers]
+    safe = [int(np.max(L.safe_acc_bits)) for L in fw.build_integer_network(net, sat).layers]
     assert [L.tree_width for L in hardware_cost(net, sat).layers] == [max(10, s) for s in safe]
     assert [L.tree_width for L in hardware_cost(net, plan.replace(acc_bits=10)).layers] == [10, 10]
     t = c3.totals()
