@@ -21,7 +21,8 @@ import os
 import statistics
 import time
 
-from fxnet_widgets import SerialExecutor, labels_from_mask, read_image, sample_pixels, sweep
+from fxnet_widgets import labels_from_mask, read_image, sample_pixels, sweep
+from fxnet_widgets.core.analysis.search import SerialExecutor
 from fxnet_widgets.core.kernel import clear_caches
 from fxnet_widgets.widgets import Explorer
 from fxnet_widgets.widgets.explorer import DEMO_ASSETS
