@@ -9,8 +9,8 @@ import pytest
 from widget_checks import assert_explorer_matches_kernel
 
 from fxnet_widgets import sweep, tune
-from fxnet_widgets.core.analysis.search import SerialExecutor
 from fxnet_widgets.core.analysis import error_metrics, hardware_cost
+from fxnet_widgets.core.analysis.search import SerialExecutor
 from fxnet_widgets.core.formats import q_notation
 from fxnet_widgets.core.kernel import emulate
 from fxnet_widgets.widgets import Explorer
