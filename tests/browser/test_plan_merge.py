@@ -122,7 +122,8 @@ def _run_all(menu, page, base: str, url: str, ready) -> None:
 def test_jupyterlab_run_all_keeps_the_last_cells_plan(lab_server, new_page, explorer_page, kernel_run, lab_menu):
     page, log = new_page(viewport={"width": 1600, "height": 1400})
     idle = "() => /\\| Idle/.test((document.querySelector('#jp-main-statusbar') || {}).textContent)"
-    _run_all(lab_menu, page, lab_server.base, f"/lab/tree/{NOTEBOOK}",
+    # a workspace of its own, reset: only this notebook open (the Lab server is shared with test_lab.py)
+    _run_all(lab_menu, page, lab_server.base, f"/lab/workspaces/plan-merge/tree/{NOTEBOOK}?reset",
              lambda: page.wait_for_function(idle, timeout=90_000))  # fmt: skip
     page.wait_for_function(idle, timeout=150_000, polling=250)
     root = ".jp-Notebook .fxnet-explorer"
