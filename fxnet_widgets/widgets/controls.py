@@ -313,10 +313,10 @@ class PlanControlsPanel(w.VBox):
                 self.rows[name].layout.display = "" if have else "none"
                 if not have:
                     continue
-                if name == "acc_bits":
+                last = self.session.last_result
+                if name == "acc_bits" and last is not None:
                     s = self.sliders[name]
-                    safe = int(max(L.safe_acc_bits.max() for L in self._intlayers()))
-                    s.max = max(s.max, min(safe + 8, INT_LIMITS["acc_bits"][1]))
+                    s.max = max(s.max, min(max(last.layer_safe_acc_bits) + 8, INT_LIMITS["acc_bits"][1]))
                 values = [int(getattr(plan.layers[li], name)) for li in have]
                 self._write(name, values, version)
                 self.notes[name].value = self._note(have, chosen, values)
@@ -350,22 +350,14 @@ class PlanControlsPanel(w.VBox):
             return text
         return f"<span style='font-size:12px;color:#8a5a00;white-space:nowrap' title='{text}'>{text}</span>"
 
-    def _intlayers(self) -> list[Any]:
-        from ..core.kernel import quantise
-
-        try:
-            return list(quantise(self.session.network, self.session.plan).layers)
-        except (TypeError, ValueError):
-            return list(quantise(self.session.network, self.session.result.plan).layers)
-
     def _show_safe(self) -> None:
-        try:
-            layers = self._intlayers()
-        except Exception:  # no result yet
+        """The safe widths the last result carries (the label follows each new result)."""
+        result = self.session.last_result
+        if result is None:
             return
         parts = []
         for li in self.targets():
-            safe = int(layers[li].safe_acc_bits.max())
+            safe = result.layer_safe_acc_bits[li]
             have = self.session.plan.layers[li].acc_bits
             mark = "ok" if have >= safe else "can overflow"
             colour = "#2d6a2d" if have >= safe else "#b00020"

@@ -231,9 +231,9 @@ class Session(t.HasTraits):
         return self._result
 
     @property
-    def has_result(self) -> bool:
-        """Whether an update has worked yet (:attr:`result` holds its records)."""
-        return self._result is not None
+    def last_result(self) -> SessionResult | None:
+        """The last result computed, without computing a waiting change (None before the first)."""
+        return self._result
 
     @property
     def pending(self) -> bool:

@@ -83,7 +83,7 @@ class StatusLinePanel(w.HTML):
         s = self.session
         parts = []
         if s.error:
-            shown = s.has_result
+            shown = s.last_result is not None
             parts.append(f"error: {s.error}" + (" (views show the last plan that worked)" if shown else ""))
         for msg in s.view_errors.values():
             parts.append(f"view error: {msg}")
