@@ -54,7 +54,8 @@ def run(args: argparse.Namespace) -> int:
             raise CliError("fxnet report: --mask needs an image input, not a .npy of codes")
         options["samples"] = codes
     explorer = Explorer(net, plan=plan, **options)
-    path = save_report(explorer, out, offline_bundles=args.offline, title=args.title)
+    path = save_report(explorer.session, out, widget=explorer, summary=explorer.summary(),
+                       offline_bundles=args.offline, title=args.title)  # fmt: skip
     if note:
         print(f"input {args.input}: {note}")
     print(explorer.summary())

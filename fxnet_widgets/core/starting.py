@@ -230,7 +230,7 @@ def starting_plan(
         g = (float(lo.min()), float(hi.max()))
         obs = observed[i] if observed is not None else None
         what = f"layer {i + 1} ({L.activation})"
-        if L.activation in ("sigmoid", "tanh"):
+        if L.has_table:
             doc["table_bits"] = table_bits
             doc["table_frac"] = table_frac_for(table_bits, out_bits)
             reach = 2.0 ** (table_bits - 1 - doc["table_frac"])

@@ -1,17 +1,20 @@
-"""One-file HTML reports of an explorer: static tables and pictures, plus the live widgets.
+"""One-file HTML reports of a session: static tables and pictures, plus the live widgets.
 
-A report has two layers:
+The report reads a :class:`~fxnet_widgets.widgets.session.Session` (its result)
+and embeds the widget it is given (the explorer passes itself); it never
+imports the explorer. A report has two layers:
 
-* static content that reads without JavaScript (and prints): the explorer's
+* static content that reads without JavaScript (and prints): the session's
   summary, the plan, the hardware cost, the metrics, the event table, and PNG
   pictures (preview, decision masks, the disagreement overlay, the three
   boundary slices, the cube, the event chart and one histogram per neuron),
   drawn in Python;
 * the widgets themselves, embedded with their state by the standard Jupyter
   widgets embedding (``application/vnd.jupyter.widget-state+json``). There is
-  no kernel in a report, so the page says which controls still work: the
-  browser-side links (``jslink``: each width slider with its number box);
-  everything that recomputes needs a kernel.
+  no kernel in a report, so the page says which controls still work (the
+  browser-side links, ``jslink``, if the widget has any; the explorer's
+  controls have none, so that no browser-side copy is ever sent back to a
+  kernel) and that everything that recomputes needs a kernel.
 
 By default the page loads require.js and the widget manager from public CDNs
 (bqplot's bundle is inlined from the installed wheel: its JavaScript 0.6.x is
@@ -22,8 +25,9 @@ Examples
 --------
 >>> from fxnet_widgets import Explorer                      # doctest: +SKIP
 >>> from fxnet_widgets.report import save_report            # doctest: +SKIP
->>> save_report(Explorer.demo(), "report.html")             # doctest: +SKIP
->>> save_report(ex, "offline.html", offline_bundles="widget-bundles/html-manager")  # doctest: +SKIP
+>>> ex = Explorer.demo()                                    # doctest: +SKIP
+>>> save_report(ex.session, "report.html", widget=ex)       # doctest: +SKIP
+>>> ex.save_report("offline.html", offline_bundles="widget-bundles/html-manager")  # doctest: +SKIP
 """
 
 from __future__ import annotations
@@ -65,12 +69,6 @@ figcaption { font-size: 12px; display: table-caption; caption-side: bottom; padd
 """
 
 
-def _explorer_types() -> tuple[type, ...]:
-    from ..widgets.explorer import Explorer
-
-    return (Explorer,)
-
-
 def _widget_label(widget: Any) -> str:
     d = getattr(widget, "description", "") or ""
     if d:
@@ -79,17 +77,17 @@ def _widget_label(widget: Any) -> str:
     return "its number box" if kind.endswith("Text") else kind
 
 
-def embedded_state(explorer: Any) -> tuple[dict[str, Any], list[dict[str, Any]]]:
-    """``(manager_state, view_specs)`` of the explorer and everything it depends on.
+def embedded_state(widget: Any) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """``(manager_state, view_specs)`` of the widget and everything it depends on.
 
-    Uses :func:`ipywidgets.embed.dependency_state` (so only the explorer's
+    Uses :func:`ipywidgets.embed.dependency_state` (so only the widget's
     widgets and the ``jslink`` s between them are embedded, not every widget
     alive in the kernel) and :func:`ipywidgets.embed.embed_data`.
     """
     from ipywidgets.embed import dependency_state, embed_data
 
-    state = dependency_state([explorer], drop_defaults=True)
-    data = embed_data(views=[explorer], drop_defaults=True, state=state)
+    state = dependency_state([widget], drop_defaults=True)
+    data = embed_data(views=[widget], drop_defaults=True, state=state)
     return data["manager_state"], data["view_specs"]
 
 
@@ -140,7 +138,7 @@ def kernel_note(manager_state: dict[str, Any], root: Any = None) -> str:
         "linked in the browser (<code>jslink</code>), which move together but recompute nothing:</p>"
         f'<ul class="linked">{items or "<li>(none)</li>"}</ul>'
         "<p>What needs a kernel (open the notebook, or run <code>fxnet</code> again): every change of the plan "
-        "(moving a width slider changes only its number box here), the layer and mode choices, the "
+        "(moving a width slider here moves only that slider), the layer and mode choices, the "
         "<em>safe</em> button, the slice positions, full resolution, and every picture, chart and number, which "
         "stay those of the saved plan.</p></div>"
     )
@@ -153,14 +151,24 @@ def _json_script(obj: Any, mime: str) -> str:
 
 
 def report_html(
-    explorer: Any, *, offline_bundles: str | os.PathLike[str] | None = None, title: str | None = None
+    session: Any,
+    *,
+    widget: Any = None,
+    summary: str | None = None,
+    offline_bundles: str | os.PathLike[str] | None = None,
+    title: str | None = None,
 ) -> str:
-    """The report page of ``explorer`` as one HTML string (see the module text).
+    """The report page of ``session`` as one HTML string (see the module text).
 
     Parameters
     ----------
-    explorer
-        An :class:`~fxnet_widgets.widgets.explorer.Explorer`.
+    session
+        A :class:`~fxnet_widgets.widgets.session.Session` (the report reads its result).
+    widget
+        The ipywidgets widget to embed live (for example the explorer showing the
+        session); None: the report has tables and pictures only.
+    summary
+        The text of the summary section (default: ``session.summary()``).
     offline_bundles
         None (scripts from public CDNs) or the directory of the
         ``@jupyter-widgets/html-manager`` package (``dist/embed-amd.js``; from
@@ -168,20 +176,28 @@ def report_html(
     title
         Page title (default: "fxnet report: <network shape>").
     """
-    if not isinstance(explorer, _explorer_types()):
-        raise TypeError(f"explorer must be an Explorer, not {type(explorer).__name__}")
+    from ..widgets.session import Session
+
+    if not isinstance(session, Session):
+        raise TypeError(f"session must be a Session, not {type(session).__name__}")
+    if widget is not None:
+        from ipywidgets import Widget
+
+        if not isinstance(widget, Widget):
+            raise TypeError(f"widget must be an ipywidgets Widget or None, not {type(widget).__name__}")
+    if summary is not None and not isinstance(summary, str):
+        raise TypeError(f"summary must be a str or None, not {type(summary).__name__}")
     if title is not None and not isinstance(title, str):
         raise TypeError(f"title must be a str, not {type(title).__name__}")
     if offline_bundles is not None and not isinstance(offline_bundles, (str, os.PathLike)):
         raise TypeError(f"offline_bundles must be a directory path, not {type(offline_bundles).__name__}")
-    session = explorer.session
     net = session.network
     shape = "-".join(map(str, net.shape))
     acts = ", ".join(L.activation for L in net.layers)
     page_title = title if title is not None else f"fxnet report: {shape} network"
     bundles: Bundles = _offline_bundles(offline_bundles) if offline_bundles is not None else cdn_bundles()
-    static = static_sections(session, explorer.summary())
-    manager_state, views = embedded_state(explorer)
+    static = static_sections(session, summary if summary is not None else session.summary())
+    manager_state, views = embedded_state(widget) if widget is not None else ({}, [])
     view_html = "\n".join(_json_script(v, WIDGET_VIEW_MIME) for v in views)
     mode = ("offline: every script is inlined in this file" if bundles.offline
             else "scripts from public CDNs (bqplot's inlined)")  # fmt: skip
@@ -193,7 +209,7 @@ def report_html(
         + "</p>"
     )
     live = (
-        f'<section id="live"><h2>Live widgets</h2>\n{kernel_note(manager_state, explorer)}\n'
+        f'<section id="live"><h2>Live widgets</h2>\n{kernel_note(manager_state, widget)}\n'
         f'<p class="scripts">JavaScript: {esc(mode)}.</p>\n'
         '<noscript><p>JavaScript is off: the tables and pictures above are the whole report.</p></noscript>\n'
         f'<div class="widgets">\n{view_html}\n</div></section>'
@@ -222,17 +238,19 @@ def report_html(
 
 
 def save_report(
-    explorer: Any,
+    session: Any,
     path: str | os.PathLike[str],
     *,
+    widget: Any = None,
+    summary: str | None = None,
     offline_bundles: str | os.PathLike[str] | None = None,
     title: str | None = None,
 ) -> Path:
-    """Write :func:`report_html` of ``explorer`` to ``path`` atomically; returns the path.
+    """Write :func:`report_html` of ``session`` to ``path`` atomically; returns the path.
 
     Examples
     --------
-    >>> save_report(explorer, "report.html")  # doctest: +SKIP
+    >>> save_report(explorer.session, "report.html", widget=explorer)  # doctest: +SKIP
     PosixPath('report.html')
     """
     if not isinstance(path, (str, os.PathLike)):
@@ -240,5 +258,5 @@ def save_report(
     parent = Path(os.path.abspath(path)).parent
     if not parent.is_dir():
         raise ValueError(f"path must be in an existing directory, not {os.fspath(path)!r}")
-    text = report_html(explorer, offline_bundles=offline_bundles, title=title)
+    text = report_html(session, widget=widget, summary=summary, offline_bundles=offline_bundles, title=title)
     return atomic_write_text(path, text)

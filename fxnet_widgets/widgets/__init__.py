@@ -11,7 +11,8 @@ from .events import EventsPlot, HistogramPlot, HistogramsPanel
 from .explorer import Explorer, demo_explorer
 from .metrics import MetricsPanel
 from .preview import PreviewPanel
-from .session import Session, SessionResult, default_plan
+from .results import SessionResult
+from .session import Session, default_plan
 from .status import StatusLinePanel, SweepProgressBar
 
 __all__ = [

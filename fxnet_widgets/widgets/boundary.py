@@ -22,8 +22,11 @@ import traitlets as t
 
 from ..render.cube import cube_png
 from ..render.palette import class_colours, hex_colour, slice_legend_names, slice_palette
-from ..render.raster import comparison_codes
-from .session import SLICES, Session, SessionResult
+from ..render.raster import comparison_codes, decision_mask_png
+from .legend import class_legend_html, difference_legend_html
+from .page import PageIntSlider, from_page
+from .results import SLICES, SessionResult
+from .session import Session
 
 __all__ = ["SlicePlot", "BoundaryPanel", "CubePanel", "MODES"]
 
@@ -155,7 +158,7 @@ class SlicePlot(w.VBox):
             layout=w.Layout(width=f"{size}px", height=f"{size}px"), padding_x=0, padding_y=0,
         )  # fmt: skip
         trait = _POSITION_TRAIT[fi]
-        self.position = w.IntSlider(
+        self.position = PageIntSlider(
             value=getattr(session, trait), min=0, max=int(hi), description=f"{names[fi]} code",
             continuous_update=True, layout=w.Layout(width=f"{size}px"), style={"description_width": "80px"},
         )  # fmt: skip
@@ -173,7 +176,7 @@ class SlicePlot(w.VBox):
         if getattr(self.session, self._trait) == change["new"]:
             return
         # a drag in the browser: coalesce (latest value wins); from code: compute now
-        ctx = self.session.deferred() if self.position._property_lock else contextlib.nullcontext()
+        ctx = self.session.deferred() if from_page(self.position) else contextlib.nullcontext()
         with ctx:
             setattr(self.session, self._trait, change["new"])
 
@@ -224,6 +227,19 @@ class BoundaryPanel(w.VBox):
         super().__init__([self.mode, self.legend, row], **kwargs)
 
 
+def cube_class_tiles(fixed: np.ndarray, levels: int = 4) -> np.ndarray:
+    """The (n, levels * n) class map of an (n, n, n) [red, green, blue] grid: one red-green tile per blue level.
+
+    Tile ``k`` is the grid at blue index ``(2k + 1) n / (2 levels)``, red across and green up (row 0 at the top).
+
+    >>> cube_class_tiles(np.arange(8).reshape(2, 2, 2), levels=2).tolist()
+    [[2, 6, 3, 7], [0, 4, 1, 5]]
+    """
+    n = fixed.shape[0]
+    tiles = [fixed[:, ::-1, min(n - 1, (2 * k + 1) * n // (2 * levels))].T for k in range(levels)]
+    return np.concatenate(tiles, axis=1)
+
+
 class CubePanel(w.VBox):
     """An isometric picture of the disagreeing points of the whole input cube."""
 
@@ -237,8 +253,19 @@ class CubePanel(w.VBox):
         self.image = w.Image(format="png", layout=w.Layout(width=f"{size}px", height=f"{size}px"))
         self.caption = w.HTML()
         self.caption.layout = w.Layout(width=f"{size}px")
+        classes = tuple(session.network.classes)
+        self.legend = w.HTML(difference_legend_html(classes), layout=w.Layout(width=f"{size}px"))
+        parts: list[w.Widget] = [w.HTML("<b>whole RGB cube: where they differ</b>"), self.image, self.legend,
+                                 self.caption]  # fmt: skip
+        #: several classes: the fixed-point class map of the cube grid, red-green tiles at four blue levels
+        self.class_map: w.Image | None = None
+        if len(classes) > 2:
+            self.class_map = w.Image(format="png", layout=w.Layout(width=f"{size}px"))
+            parts += [w.HTML("<b>fixed-point classes</b> <span style='font-size:12px'>(red across, green up; "
+                             "tiles at four blue levels)</span>"), self.class_map,
+                      w.HTML(class_legend_html(classes), layout=w.Layout(width=f"{size}px"))]  # fmt: skip
         kwargs.setdefault("layout", w.Layout(flex="0 0 auto"))
-        super().__init__([w.HTML("<b>whole RGB cube: where they differ</b>"), self.image, self.caption], **kwargs)
+        super().__init__(parts, **kwargs)
         self._last: Any = None
         session.add_view("cube", self._draw)
 
@@ -250,6 +277,8 @@ class CubePanel(w.VBox):
         self._last = cube
         self.image.value = cube_png(cube.fixed, cube.float_, self.size, result.n_classes)
         n = cube.grid.size
+        if self.class_map is not None:
+            self.class_map.value = decision_mask_png(cube_class_tiles(cube.fixed), result.n_classes)
         self.caption.value = (
             f"<span style='font-size:12px'>{cube.mismatch} of {n**3} grid points differ "
             f"(grid {n}x{n}x{n}, codes {int(cube.grid[0])}..{int(cube.grid[-1])})</span>"

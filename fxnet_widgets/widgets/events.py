@@ -1,7 +1,11 @@
 """Overflow and saturation: per-neuron event bars and pre-activation histograms.
 
 :class:`EventsPlot` shows, per neuron, grouped bars of accumulator overflows,
-table clamps (low, high) and clipped weights on the session's data.
+clamps and clipped weights on the session's data, by honest names: table clamps
+(low, high) for sigmoid/tanh layers; output clamps for the top of a relu and
+either end of identity; "off" for a relu's negative pre-activation (the
+activation itself, not a warning). With several outputs its caption counts the
+argmax ties per class pair.
 :class:`HistogramPlot` shows one neuron's histogram of exact accumulator sums
 (real pre-activation values) with the accumulator range and the table window
 marked as vertical lines, so what falls outside them is what gets cut off.
@@ -10,23 +14,46 @@ Both use log count axes (a single event stays visible next to thousands).
 
 from __future__ import annotations
 
+import html
 from typing import Any
 
 import bqplot as bq
 import ipywidgets as w
 import numpy as np
 
-from .session import NeuronResult, Session, SessionResult
+from .results import EVENT_LABELS, NeuronResult, SessionResult, layer_kind
+from .session import Session
+from .text import ties_text
 
-__all__ = ["EventsPlot", "HistogramPlot", "HistogramsPanel", "BAR_EVENTS", "log_heights"]
+__all__ = [
+    "EventsPlot", "HistogramPlot", "HistogramsPanel", "BAR_EVENTS", "NO_TABLE_EVENTS", "bar_events", "log_heights",
+]  # fmt: skip
 
-#: event -> (legend text, colour)
+#: event -> (legend text, colour), for a network whose layers all have tables
 BAR_EVENTS: dict[str, tuple[str, str]] = {
-    "acc_overflow": ("accumulator overflows", "#d62d7b"),
-    "table_low": ("table clamps low", "#1aaabe"),
-    "table_high": ("table clamps high", "#0b5f73"),
-    "weight_clip": ("clipped weights", "#f2b705"),
+    "acc_overflow": (EVENT_LABELS["acc_overflow"], "#d62d7b"),
+    "table_low": (EVENT_LABELS["table_low"], "#1aaabe"),
+    "table_high": (EVENT_LABELS["table_high"], "#0b5f73"),
+    "weight_clip": (EVENT_LABELS["weight_clip"], "#f2b705"),
 }
+#: the bars added for relu/identity layers
+NO_TABLE_EVENTS: dict[str, tuple[str, str]] = {
+    "output_clamp": (EVENT_LABELS["output_clamp"], "#7a5ac8"),
+    "off": (EVENT_LABELS["off"], "#9a9a9a"),
+}
+
+
+def bar_events(kinds: tuple[str, ...]) -> dict[str, tuple[str, str]]:
+    """The bars for a network with these layer kinds (:func:`~fxnet_widgets.widgets.results.layer_kind`)."""
+    out = {"acc_overflow": BAR_EVENTS["acc_overflow"]}
+    if "table" in kinds:
+        out.update(table_low=BAR_EVENTS["table_low"], table_high=BAR_EVENTS["table_high"])
+    if any(k != "table" for k in kinds):
+        out["output_clamp"] = NO_TABLE_EVENTS["output_clamp"]
+    if "relu" in kinds:
+        out["off"] = NO_TABLE_EVENTS["off"]
+    out["weight_clip"] = BAR_EVENTS["weight_clip"]
+    return out
 _BASE = 0.5  # log axes start here; a count of 0 is drawn with zero height
 
 
@@ -50,13 +77,18 @@ def log_heights(counts: np.ndarray) -> np.ndarray:
 
 
 class EventsPlot(w.VBox):
-    """Grouped bars, one group per neuron: overflows, clamps, clipped weights.
+    """Grouped bars, one group per neuron: overflows, clamps, relu "off", clipped weights.
 
     Attributes
     ----------
+    shown : dict
+        The bars, :func:`bar_events` of the network's layer kinds (for sigmoid/tanh
+        only networks: :data:`BAR_EVENTS`).
     counts : numpy.ndarray
-        (4, neurons) int64, rows in the order of :data:`BAR_EVENTS`: exactly the
-        kernel's event counts on the session's data.
+        (bars, neurons) int64, rows in the order of ``shown``: exactly the
+        kernel's event counts on the session's data, under their honest names
+        (:attr:`~fxnet_widgets.widgets.results.NeuronResult.shown`; 0 where a
+        layer has no such event).
     bars : bqplot.Bars
         ``y`` is :func:`log_heights` of ``counts``.
     """
@@ -65,13 +97,14 @@ class EventsPlot(w.VBox):
         if not isinstance(session, Session):
             raise TypeError(f"session must be a Session, not {type(session).__name__}")
         self.session = session
+        self.shown = bar_events(tuple(layer_kind(L.activation) for L in session.network.layers))
         self.xs = bq.OrdinalScale()
         self.ys = bq.LogScale(min=_BASE)
-        colours = [c for _, c in BAR_EVENTS.values()]
+        colours = [c for _, c in self.shown.values()]
         self.y_axis = bq.Axis(scale=self.ys, side="left", label="count (log)", tick_format="~s")
         self.bars = bq.Bars(
             scales={"x": self.xs, "y": self.ys}, type="grouped", colors=colours, base=_BASE,
-            labels=[d for d, _ in BAR_EVENTS.values()], display_legend=False, padding=0.2,
+            labels=[d for d, _ in self.shown.values()], display_legend=False, padding=0.2,
         )  # fmt: skip
         self.figure = bq.Figure(
             marks=[self.bars],
@@ -86,18 +119,18 @@ class EventsPlot(w.VBox):
             + "".join(
                 f"<span style='display:inline-block;width:12px;height:12px;background:{c};margin:0 4px 0 12px;"
                 f"vertical-align:middle'></span>{d}"
-                for d, c in BAR_EVENTS.values()
+                for d, c in self.shown.values()
             )
             + "</div>"
         )
-        self.counts = np.zeros((len(BAR_EVENTS), 0), dtype=np.int64)
+        self.counts = np.zeros((len(self.shown), 0), dtype=np.int64)
         self.labels: list[str] = []
         super().__init__([self.legend, self.figure, self.caption], **kwargs)
         session.add_view("events", self._draw)
 
     def _draw(self, result: SessionResult) -> None:
         labels = [nr.label for nr in result.neurons]
-        counts = np.array([[nr.events[k] for nr in result.neurons] for k in BAR_EVENTS], dtype=np.int64)
+        counts = np.array([[nr.shown.get(k, 0) for nr in result.neurons] for k in self.shown], dtype=np.int64)
         self.counts, self.labels = counts, labels
         with self.bars.hold_sync():
             self.bars.x = np.array(labels)
@@ -105,11 +138,16 @@ class EventsPlot(w.VBox):
         top = float(max(1.0, counts.max(initial=0)) * 2.0)
         self.ys.max = top
         self.y_axis.tick_values = log_ticks(top)
-        tot = result.event_totals()
+        tot = result.shown_totals()
+        ties = "".join(
+            f"; argmax ties on the {html.escape(f.name)} (lower index wins): "
+            + html.escape(ties_text(f.ties, result.classes))
+            for f in result.figures if f.ties
+        )  # fmt: skip
         self.caption.value = (
             f"<span style='font-size:12px'>on the {result.data_name}: "
-            + ", ".join(f"{BAR_EVENTS[k][0]} {tot[k]}" for k in BAR_EVENTS)
-            + f", clipped biases {tot['bias_clip']}</span>"
+            + ", ".join(f"{self.shown[k][0]} {tot[k]}" for k in self.shown)
+            + f", clipped biases {tot['bias_clip']}{ties}</span>"
         )
 
 
@@ -174,17 +212,27 @@ class HistogramPlot(w.VBox):
             self.xs.min, self.xs.max = lo, hi
         self.ys.max = top
         self.y_axis.tick_values = log_ticks(top)
-        ev = nr.events
         shown = [v for v in xs[:2] if lo <= v <= hi]
         acc_note = "accumulator range off scale" if not shown else "accumulator range: red dashes"
         self.figure.title = f"{nr.label}"
+        window = "table window" if nr.kind == "table" else "output range"
         self.caption.value = (
             f"<span style='font-size:11px'>{nr.label}: sums "
             f"{nr.real(nr.observed_min):.4g}..{nr.real(nr.observed_max):.4g}; "
-            f"table window {xs[2]:.4g}..{xs[3]:.4g} (teal); {acc_note} ({xs[0]:.4g}..{xs[1]:.4g}); "
-            f"overflows {ev['acc_overflow']}, clamps {ev['table_low']} low / {ev['table_high']} high; "
-            f"safe width {nr.safe_acc_bits} b</span>"
+            f"{window} {xs[2]:.4g}..{xs[3]:.4g} (teal); {acc_note} ({xs[0]:.4g}..{xs[1]:.4g}); "
+            f"{_neuron_events(nr)}; safe width {nr.safe_acc_bits} b</span>"
         )
+
+
+def _neuron_events(nr: NeuronResult) -> str:
+    """One neuron's events in words: overflows, then clamps (or relu "off") by kind."""
+    ev = nr.shown
+    words = f"overflows {ev['acc_overflow']}, "
+    if nr.kind == "table":
+        return words + f"table clamps {ev['table_low']} low / {ev['table_high']} high"
+    if nr.kind == "relu":
+        return words + f"output clamps {ev['output_clamp']} (top), off {ev['off']} (negative input)"
+    return words + f"output clamps {ev['output_clamp']}"
 
 
 class HistogramsPanel(w.VBox):
@@ -198,7 +246,8 @@ class HistogramsPanel(w.VBox):
         rows = [w.HBox(self.plots, layout=w.Layout(flex_flow="row wrap", align_items="flex-start"))]
         head = w.HTML(
             "<b>exact accumulator sums on the data</b> <span style='font-size:12px'>(per neuron; dashed: "
-            "accumulator range in red, table window in teal; what lies outside is cut off)</span>"
+            "accumulator range in red, table window (relu/identity: output range) in teal; what lies outside "
+            "is cut off; below a relu's range it is off)</span>"
             + (f" <i>first {max_plots} of {n} neurons</i>" if n > max_plots else "")
         )
         super().__init__([head, *rows], **kwargs)

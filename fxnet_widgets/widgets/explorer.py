@@ -158,12 +158,13 @@ class Explorer(w.VBox):
     ) -> Path:
         """Write a one-file HTML report of the current state (see :func:`fxnet_widgets.report.save_report`).
 
-        The report reads without JavaScript (tables and pictures rendered in Python) and
-        carries the widgets with their state; ``offline_bundles`` makes it open offline.
+        The report reads the session without JavaScript (tables and pictures rendered in Python)
+        and carries this explorer's widgets with their state; ``offline_bundles`` makes it open offline.
         """
         from ..report import save_report
 
-        return save_report(self, path, offline_bundles=offline_bundles, title=title)
+        return save_report(self.session, path, widget=self, summary=self.summary(),
+                           offline_bundles=offline_bundles, title=title)  # fmt: skip
 
     def __repr__(self) -> str:
         shape = "-".join(map(str, self.session.network.shape))

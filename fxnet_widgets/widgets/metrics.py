@@ -1,31 +1,174 @@
-"""Metrics and cost: disagreement with float, accuracy on labels, events, hardware cost.
+"""Metrics and cost: disagreement with float, accuracy, confusion, ties, events, hardware cost.
 
-Uses :func:`fxnet_widgets.core.analysis.metrics.error_metrics` and
-:func:`fxnet_widgets.core.analysis.cost.hardware_cost` on the session's results;
-the panel only formats what they return.
+The session computes every figure (:class:`~fxnet_widgets.widgets.results.DataFigures`,
+:class:`~fxnet_widgets.core.analysis.cost.HardwareCost`); this panel only lays
+them out: :func:`metrics_rows` turns a result into rows (headings, ``key: value``
+lines, n x n matrices), :func:`rows_html` into an HTML table and
+:func:`rows_text` into deterministic text.
 """
 
 from __future__ import annotations
 
 import html
+from dataclasses import dataclass
 from typing import Any
 
 import ipywidgets as w
 
-from ..core.analysis.cost import hardware_cost
-from ..core.analysis.metrics import error_metrics
-from .session import Session, SessionResult
+from .results import EVENT_LABELS, DataFigures, SessionResult
+from .session import Session
+from .text import ties_text
 
-__all__ = ["MetricsPanel", "metrics_table_html"]
+__all__ = ["MetricsPanel", "Row", "Matrix", "metrics_rows", "rows_html", "rows_text"]
+
+
+@dataclass(frozen=True)
+class Matrix:
+    """An n x n count table: ``cells[i][j]`` at row name ``names[i]``, column name ``names[j]``."""
+
+    title: str
+    names: tuple[str, ...]
+    cells: tuple[tuple[int, ...], ...]
+
+
+@dataclass(frozen=True)
+class Row:
+    """One line of the panel: a heading (``key`` only), a ``key: value`` line (value parts), or a matrix."""
+
+    key: str
+    parts: tuple[str, ...] = ()
+    matrix: Matrix | None = None
+    depth: int = 1
+
+
+def _pct(v: float | None) -> str:
+    return "-" if v is None else f"{100 * v:.3f} %"
+
+
+def _data_rows(f: DataFigures, classes: tuple[str, ...]) -> list[Row]:
+    m = f.metrics
+    rows = [Row(f"{f.name}:", depth=0),
+            Row("differ from float", (f"{m.mismatch} of {m.n} decisions ({100 * m.mismatch_fraction:.3f} %)",))]
+    for i, (mx, mn, mxl, mnl) in enumerate(zip(m.max_abs_error, m.mean_abs_error, m.max_abs_error_lsb,
+                                                m.mean_abs_error_lsb)):  # fmt: skip
+        rows.append(Row(f"output {i}", (f"max |error| {mx:.6g} ({mxl:.3f} LSB)",
+                                        f"mean |error| {mn:.6g} ({mnl:.3f} LSB)")))  # fmt: skip
+    if m.accuracy is not None:
+        rows.append(Row("accuracy against labels", (f"fixed {m.accuracy:.5f}", f"float {m.float_accuracy:.5f}")))
+        assert m.confusion is not None
+        rows.append(Row("confusion", matrix=Matrix("rows: label, columns: fixed-point decision", classes,
+                                                   tuple(tuple(r) for r in m.confusion))))  # fmt: skip
+    rows.append(Row("agreement per class", tuple(f"{c} {_pct(a)}" for c, a in zip(classes, f.per_class_agreement))))
+    if len(classes) > 2:
+        rows.append(Row("float vs fixed", matrix=Matrix("rows: float decision, columns: fixed-point decision",
+                                                        classes, f.agreement)))  # fmt: skip
+    if f.ties:
+        rows.append(Row("argmax ties (lower index wins)", (ties_text(f.ties, classes),)))
+    return rows
+
+
+def metrics_rows(result: SessionResult) -> list[Row]:
+    """The panel's rows for ``result``: per data set its figures, the cube, then the hardware cost."""
+    rows: list[Row] = []
+    for f in result.figures:
+        rows += _data_rows(f, result.classes)
+    if result.cube is not None:
+        n = result.cube.grid.size
+        rows.append(Row(f"whole cube grid ({n}^3 points): {result.cube.mismatch} differ from float", depth=0))
+    tot = result.shown_totals()
+    kinds = set(result.kinds)
+    names = ["acc_overflow"] + (["table_low", "table_high"] if "table" in kinds else [])
+    names += (["output_clamp"] if kinds - {"table"} else []) + (["off"] if "relu" in kinds else [])
+    names += ["weight_clip", "bias_clip"]
+    rows.append(Row(f"events on the {result.data_name}:", depth=0))
+    rows.append(Row("warnings", tuple(f"{EVENT_LABELS[k]} {tot[k]}" for k in names if k != "off")))
+    if "relu" in kinds:
+        rows.append(Row("relu off (not a warning)", (str(tot["off"]),)))
+    c = result.cost
+    mode = ("constant weights as CSD shift-and-add" if c.multipliers_mode == "csd"
+            else f"hard multipliers of {c.multiplier_size[0]}x{c.multiplier_size[1]} bits")  # fmt: skip
+    rows.append(Row(f"hardware cost ({mode}; memory blocks of {c.block_bits} bits; "
+                    f"{c.pipeline_stages} pipeline stage(s) per layer)", depth=0))  # fmt: skip
+    for L in c.layers:
+        table = (f"{L.tables} table(s) of {L.table_entries} x {L.table_width} b = {L.table_bits} bits "
+                 f"in {L.table_blocks} block(s)" if L.tables else "no table")  # fmt: skip
+        rows.append(Row(f"layer {L.layer} ({L.activation}, {L.n_in}->{L.n_out})", (
+            f"{L.nonzero_weights} nonzero weights, {L.csd_digits} CSD digits",
+            f"adders {L.adders} ({L.product_adders} in products, {L.tree_adders} in trees, {L.tree_width} b wide)",
+            f"multipliers {L.multipliers}", f"accumulator {L.acc_bits} b", table,
+            f"registers {L.register_bits} bits")))  # fmt: skip
+    t = c.totals()
+    rows.append(Row("total", (
+        f"adders {t['adders']} ({t['adder_bits']} adder bits), multipliers {t['multipliers']}",
+        f"table bits {t['table_bits']} in {t['table_blocks']} block(s), register bits {t['register_bits']}",
+        f"latency {t['latency']} clocks", f"total bits {t['total_bits']}")))  # fmt: skip
+    return rows
+
+
+_CELL = "padding:1px 6px 1px 0;vertical-align:top;word-break:normal;overflow-wrap:normal"
+
+
+def _matrix_html(m: Matrix) -> str:
+    e = html.escape
+    head = "".join(f"<th style='{_CELL};text-align:right'>{e(n)}</th>" for n in m.names)
+    body = "".join(
+        f"<tr><th style='{_CELL};text-align:right'>{e(n)}</th>"
+        + "".join(f"<td style='{_CELL};text-align:right'>{v}</td>" for v in row) + "</tr>"
+        for n, row in zip(m.names, m.cells)
+    )  # fmt: skip
+    return (f"<div style='color:#555'>{e(m.title)}</div><table class='fxnet-matrix' style='border-collapse:collapse;"
+            f"font-family:monospace'><tr><th></th>{head}</tr>{body}</table>")  # fmt: skip
+
+
+def rows_html(rows: list[Row]) -> str:
+    """The rows as a small HTML table (every text escaped; a matrix as a nested table).
+
+    >>> rows_html([Row("cost", depth=0), Row("layer 1", ("adders 3", "multipliers 0"))]).count("<tr>")
+    2
+    """
+    out = []
+    for r in rows:
+        pad = f"padding-left:{8 * r.depth}px;"
+        if r.depth == 0:
+            out.append(f"<tr><th colspan='2' style='{_CELL};text-align:left;padding-top:4px'>"
+                       f"{html.escape(r.key)}</th></tr>")  # fmt: skip
+            continue
+        value = _matrix_html(r.matrix) if r.matrix is not None else "<br>".join(html.escape(p) for p in r.parts)
+        out.append(f"<tr><td style='{_CELL};{pad}white-space:nowrap;color:#555'>{html.escape(r.key)}</td>"
+                   f"<td style='{_CELL}'>{value}</td></tr>")  # fmt: skip
+    return (
+        "<table class='fxnet-metrics-table' style='font-size:11px;line-height:1.3;border-collapse:collapse;"
+        "table-layout:auto;width:100%'><tbody>" + "".join(out) + "</tbody></table>"
+    )
+
+
+def rows_text(rows: list[Row]) -> str:
+    """The rows as deterministic plain text (a matrix laid out in columns)."""
+    lines = []
+    for r in rows:
+        ind = "  " * r.depth
+        if r.depth == 0:
+            lines.append(r.key)
+        elif r.matrix is not None:
+            m = r.matrix
+            wd = max(8, *(len(n) for n in m.names))
+            lines.append(f"{ind}{r.key} ({m.title}):")
+            lines.append(f"{ind}  {'':>{wd}} " + " ".join(f"{n:>{wd}}" for n in m.names))
+            lines += [f"{ind}  {n:>{wd}} " + " ".join(f"{v:>{wd}d}" for v in row) for n, row in zip(m.names, m.cells)]
+        else:
+            lines.append(f"{ind}{r.key}: " + "; ".join(r.parts))
+    return "\n".join(lines)
 
 
 class MetricsPanel(w.VBox):
-    """Text figures of the current plan (updated on every change).
+    """The figures of the current plan (updated on every change).
 
     Attributes
     ----------
+    rows : list of Row
+        What the panel shows (:func:`metrics_rows`).
     text : str
-        The figures as deterministic plain text (also shown in the panel).
+        The same as deterministic plain text (:func:`rows_text`).
     """
 
     def __init__(self, session: Session, **kwargs: Any) -> None:
@@ -33,73 +176,13 @@ class MetricsPanel(w.VBox):
             raise TypeError(f"session must be a Session, not {type(session).__name__}")
         self.session = session
         self.html = w.HTML()
+        self.rows: list[Row] = []
         self.text = ""
         super().__init__([w.HTML("<b>metrics and cost</b>"), self.html], **kwargs)
         self.add_class("fxnet-metrics")
         session.add_view("metrics", self._draw)
 
     def _draw(self, result: SessionResult) -> None:
-        lines = []
-        if result.image is not None:
-            m = error_metrics(result.image.emulation, result.image.labels)
-            lines.append(f"image ({result.image.note}):")
-            lines += ["  " + ln for ln in m.summary().splitlines()]
-        if result.samples is not None:
-            m = error_metrics(result.samples.emulation, result.samples.labels)
-            lines.append("samples:")
-            lines += ["  " + ln for ln in m.summary().splitlines()]
-        if result.cube is not None:
-            n = result.cube.grid.size
-            lines.append(f"whole cube grid ({n}^3 points): {result.cube.mismatch} differ from float")
-        lines += hardware_cost(self.session.network, result.plan).summary().splitlines()
-        self.text = "\n".join(lines)
-        self.html.value = metrics_table_html(lines)
-
-
-_CELL = "padding:1px 6px 1px 0;vertical-align:top;word-break:normal;overflow-wrap:normal"
-
-
-def _key_split(body: str) -> tuple[str, str] | None:
-    """``"key: value"`` at the first ``": "`` outside parentheses (a confusion heading has one inside), or None."""
-    depth = 0
-    for i, ch in enumerate(body):
-        depth += {"(": 1, ")": -1}.get(ch, 0)
-        if depth == 0 and body.startswith(": ", i):
-            return body[:i], body[i + 2 :]
-    return None
-
-
-def metrics_table_html(lines: list[str]) -> str:
-    """The summary lines as a small HTML table (every text escaped).
-
-    An unindented line is a heading; ``key: value`` lines get two cells (a
-    value of ``; ``-separated parts gets one part per line); lines laid out
-    with runs of spaces (a confusion matrix) keep their layout in monospace.
-
-    >>> metrics_table_html(["cost", "  layer 1: adders 3; multipliers 0"]).count("<tr>")
-    2
-    """
-    rows = []
-    for line in lines:
-        body = line.strip()
-        if not body:
-            continue
-        depth = (len(line) - len(line.lstrip(" "))) // 2
-        pad = f"padding-left:{8 * depth}px;"
-        if depth == 0:
-            rows.append(f"<tr><th colspan='2' style='{_CELL};text-align:left;padding-top:4px'>"
-                        f"{html.escape(body)}</th></tr>")  # fmt: skip
-        elif "  " in body:  # a laid-out block (confusion matrix rows)
-            rows.append(f"<tr><td colspan='2' style='{_CELL};font-family:monospace;white-space:pre'>"
-                        f"{html.escape(line.rstrip())}</td></tr>")  # fmt: skip
-        elif _key_split(body) is not None:
-            key, value = _key_split(body)  # type: ignore[misc]
-            parts = "<br>".join(html.escape(v) for v in value.split("; "))
-            rows.append(f"<tr><td style='{_CELL};{pad}white-space:nowrap;color:#555'>{html.escape(key)}</td>"
-                        f"<td style='{_CELL}'>{parts}</td></tr>")  # fmt: skip
-        else:
-            rows.append(f"<tr><td colspan='2' style='{_CELL};{pad}'>{html.escape(body)}</td></tr>")
-    return (
-        "<table class='fxnet-metrics-table' style='font-size:11px;line-height:1.3;border-collapse:collapse;"
-        "table-layout:auto;width:100%'><tbody>" + "".join(rows) + "</tbody></table>"
-    )
+        self.rows = metrics_rows(result)
+        self.text = rows_text(self.rows)
+        self.html.value = rows_html(self.rows)

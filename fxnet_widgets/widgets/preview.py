@@ -15,7 +15,9 @@ import ipywidgets as w
 import traitlets as t
 
 from ..render.raster import MAX_RINGED, decision_mask_png, overlay_background, overlay_png, png_bytes
-from .session import Session, SessionResult
+from .legend import class_legend_html, difference_legend_html
+from .results import SessionResult
+from .session import Session
 
 __all__ = ["PreviewPanel"]
 
@@ -65,11 +67,18 @@ class PreviewPanel(w.VBox):
         )  # fmt: skip
         self._link = t.link((self.full_resolution, "value"), (session, "full_resolution"))
         self.note = w.HTML()
+        classes = tuple(session.network.classes)
+        #: the class colours of the two decision pictures and the colours of "where they differ", by class name
+        self.legend = w.HTML(
+            "<div style='display:flex;flex-wrap:wrap;gap:4px 24px'><div><b style='font-size:12px'>decisions:</b>"
+            + class_legend_html(classes) + "</div><div><b style='font-size:12px'>where they differ:</b>"
+            + difference_legend_html(classes) + "</div></div>"
+        )  # fmt: skip
         self._codes: Any = None
         self._background: Any = None
         self._last: Any = None
         wrap = {"flex_flow": "row wrap", "align_items": "flex-start"}
-        rows = [w.HBox(cells, layout=w.Layout(**wrap)),
+        rows = [w.HBox(cells, layout=w.Layout(**wrap)), self.legend,
                 w.HBox([self.full_resolution, self.note], layout=w.Layout(**wrap))]  # fmt: skip
         super().__init__(rows, **kwargs)
         session.add_view("preview", self._draw)
@@ -99,8 +108,11 @@ class PreviewPanel(w.VBox):
             said = f"{m} pixels differ"
         self.overlay_caption.value = f"<span style='font-size:12px'>{said}</span>"
         flag = " (downscaled: use full resolution for every pixel)" if im.factor > 1 else ""
+        if n == 2:
+            colours = f"magenta: only fixed point says {html.escape(result.classes[-1])}, teal: only float"
+        else:
+            colours = "magenta: fixed point and float choose different classes"
         self.note.value = (
             f"<span style='font-size:12px'>{html.escape(im.note)}{flag}; {im.mismatch} of {im.fixed.size} "
-            f"pixels differ (magenta: only fixed point says {html.escape(result.classes[-1])}, "
-            f"teal: only float)</span>"
+            f"pixels differ ({colours})</span>"
         )

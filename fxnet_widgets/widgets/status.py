@@ -8,9 +8,10 @@ from typing import Any
 import ipywidgets as w
 
 from ..core.plan import Plan
-from .session import Session, SessionResult
+from .results import SessionResult
+from .session import Session
 
-__all__ = ["StatusLinePanel", "SweepProgressBar", "plan_widths", "WIDTHS_KEY"]
+__all__ = ["StatusLinePanel", "SweepProgressBar", "plan_widths", "status_text", "WIDTHS_KEY"]
 
 #: what the short width words of :func:`plan_widths` mean (the status line's tooltip)
 WIDTHS_KEY = (
@@ -40,6 +41,26 @@ def plan_widths(plan: Plan) -> str:
     return ", ".join(groups)
 
 
+def status_text(r: SessionResult, update: int) -> str:
+    """The line for a result that worked: the warning events and the widths.
+
+    Table clamps are named for networks with a table layer, output clamps for
+    networks with relu/identity layers; relu "off" is the activation itself and
+    not named here (the events plot counts it per neuron); argmax ties are
+    named for several outputs.
+    """
+    ev = r.shown_totals()
+    words = [f"ok: update {update}", f"accumulator overflows {ev['acc_overflow']}"]
+    if "table" in r.kinds:
+        words.append(f"table clamps {ev['table_low'] + ev['table_high']}")
+    if any(k != "table" for k in r.kinds):
+        words.append(f"output clamps {ev['output_clamp']}")
+    words.append(f"clipped weights {ev['weight_clip']}")
+    if any(f.ties for f in r.figures):  # several outputs
+        words.append(f"argmax ties {r.tie_total}")
+    return ", ".join(words) + f"; widths {plan_widths(r.plan)}"
+
+
 class StatusLinePanel(w.HTML):
     """One visible line: the current plan's state, a computation error, view errors.
 
@@ -62,18 +83,12 @@ class StatusLinePanel(w.HTML):
         s = self.session
         parts = []
         if s.error:
-            shown = s.result.plan if s._result is not None else None
+            shown = s.last_result is not None
             parts.append(f"error: {s.error}" + (" (views show the last plan that worked)" if shown else ""))
         for msg in s.view_errors.values():
             parts.append(f"view error: {msg}")
         if not parts:
-            r: SessionResult = s.result
-            ev = r.event_totals()
-            parts.append(
-                f"ok: update {s.version}, accumulator overflows {ev['acc_overflow']}, "
-                f"table clamps {ev['table_low'] + ev['table_high']}, clipped weights {ev['weight_clip']}; "
-                f"widths {plan_widths(r.plan)}"
-            )
+            parts.append(status_text(s.result, s.version))
         return "; ".join(parts)
 
     def _show(self) -> None:

@@ -71,6 +71,8 @@ class Server:
 
     #: the notebook the server opens (a path relative to its notebook dir), if any
     notebook: str = ""
+    #: the server's Jupyter runtime directory (kernel connection files)
+    runtime: Path = Path()
 
     def __init__(self, name: str, argv: list[str], port: int, log: Path, cwd: Path, env: dict[str, str]) -> None:
         self.name, self.port, self.log_path = name, port, log
@@ -229,23 +231,126 @@ def _module_available(name: str) -> bool:
     return importlib.util.find_spec(name) is not None
 
 
-@pytest.fixture(scope="session")
-def voila_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
-    """Voila serving ``tests/browser/dashboard.ipynb`` on a free loopback port (only once a browser is there)."""
+def _voila(tmp_path_factory: pytest.TempPathFactory, notebook: Path) -> Iterator[Server]:
     if not _module_available("voila"):
         missing("voila is not installed (pip install -e '.[lab]')")
     home = tmp_path_factory.mktemp("voila-home")
+    (home / "runtime").mkdir()
     port = free_port()
     argv = [
-        sys.executable, "-m", "voila", str(HERE / "dashboard.ipynb"), "--no-browser", f"--port={port}",
+        sys.executable, "-m", "voila", str(notebook), "--no-browser", f"--port={port}",
         "--Voila.ip=127.0.0.1", "--Voila.port_retries=0", "--show_tracebacks=True",
+        f"--Voila.connection_dir_root={home / 'runtime'}",  # its kernels' connection files (kernel_run)
     ]  # fmt: skip
     server = Server("voila", argv, port, home / "voila.log", HERE, _server_env(home))
+    server.runtime = home / "runtime"
     try:
         server.wait_ready("/voila/static/voila.js")
         yield server
     finally:
         server.stop()
+
+
+@pytest.fixture(scope="session")
+def voila_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
+    """Voila serving ``tests/browser/dashboard.ipynb`` on a free loopback port (only once a browser is there)."""
+    yield from _voila(tmp_path_factory, HERE / "dashboard.ipynb")
+
+
+#: the notebook that sets the plan from Python several times (``test_plan_merge.py``)
+MERGE_NOTEBOOK = HERE / "plan_merge.ipynb"
+
+
+@pytest.fixture(scope="session")
+def voila_merge_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
+    """Voila serving ``tests/browser/plan_merge.ipynb`` (it runs every cell when the page opens)."""
+    yield from _voila(tmp_path_factory, MERGE_NOTEBOOK)
+
+
+@pytest.fixture(scope="session")
+def notebook_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
+    """Notebook 7 on a free loopback port, its own notebook dir holding a copy of ``plan_merge.ipynb``."""
+    if not _module_available("notebook"):
+        missing("notebook (Notebook 7) is not installed (pip install notebook)")
+    home = tmp_path_factory.mktemp("notebook-home")
+    nbdir = home / "notebooks"
+    nbdir.mkdir()
+    shutil.copy(MERGE_NOTEBOOK, nbdir / MERGE_NOTEBOOK.name)
+    (home / "assets").symlink_to(ROOT / "assets", target_is_directory=True)
+    port = free_port()
+    argv = [
+        sys.executable, "-m", "jupyter", "notebook", "--no-browser", "--allow-root", f"--port={port}",
+        "--ServerApp.ip=127.0.0.1", "--ServerApp.port_retries=0", "--IdentityProvider.token=",
+        "--ServerApp.password=", f"--notebook-dir={nbdir}",
+    ]  # fmt: skip
+    server = Server("jupyter notebook", argv, port, home / "notebook.log", nbdir, _server_env(home))
+    server.runtime = home / "runtime"
+    try:
+        server.wait_ready("/api")
+        yield server
+    finally:
+        server.stop()
+
+
+def _kernel_run(server: Server, code: str, path: str | None = None, timeout: float = 60.0) -> str:
+    """Run ``code`` on the server's kernel (of notebook ``path``, else its newest) with jupyter_client; its stdout.
+
+    The kernel runs requests in the order they arrive, so this also waits until
+    the cells queued before it have run.
+    """
+    import jupyter_client
+
+    kernel_id = None
+    if path is not None:
+        with urllib.request.urlopen(server.base + "/api/sessions", timeout=10) as r:
+            sessions = json.loads(r.read())
+        ids = [s["kernel"]["id"] for s in sessions if s.get("path", "").endswith(path) or s.get("name") == path]
+        assert ids, f"no kernel session for {path} among {sessions}"
+        kernel_id = ids[0]
+    files = sorted(Path(server.runtime).glob("**/kernel-*.json"), key=lambda f: f.stat().st_mtime)
+    if kernel_id is not None:
+        files = [f for f in files if kernel_id in f.name]
+    assert files, f"no kernel connection file in {server.runtime}"
+    kc = jupyter_client.BlockingKernelClient(connection_file=str(files[-1]))
+    kc.load_connection_file()
+    kc.start_channels()
+    try:
+        msg_id = kc.execute(code)
+        out = []
+        deadline = time.monotonic() + timeout
+        while time.monotonic() < deadline:
+            m = kc.get_iopub_msg(timeout=timeout)
+            if m["parent_header"].get("msg_id") != msg_id:
+                continue
+            if m["msg_type"] == "stream":
+                out.append(m["content"]["text"])
+            elif m["msg_type"] == "error":
+                raise AssertionError("\n".join(m["content"]["traceback"]))
+            elif m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
+                return "".join(out)
+        raise AssertionError(f"the kernel did not answer within {timeout:.0f} s")
+    finally:
+        kc.stop_channels()
+
+
+@pytest.fixture
+def kernel_run() -> Callable[..., str]:
+    """``kernel_run(server, code, path=None)``: run ``code`` on the server's kernel, return its stdout."""
+    return _kernel_run
+
+
+def _menu(page: Any, top: str, item: str) -> None:
+    """Click ``top`` in the menu bar of JupyterLab or Notebook 7, then ``item`` in its menu."""
+    import re
+
+    page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(f"^{re.escape(top)}$")).click()
+    page.locator(".lm-Menu-itemLabel", has_text=re.compile(f"^{re.escape(item)}$")).click()
+
+
+@pytest.fixture
+def lab_menu() -> Callable[[Any, str, str], None]:
+    """``lab_menu(page, "Run", "Run All Cells")``: a menu command in JupyterLab or Notebook 7."""
+    return _menu
 
 
 #: the quick-start notebook the Lab test opens (a copy of it)
@@ -263,6 +368,7 @@ def lab_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any
     nbdir = home / "notebooks"
     nbdir.mkdir()
     shutil.copy(QUICK_START, nbdir / QUICK_START.name)
+    shutil.copy(MERGE_NOTEBOOK, nbdir / MERGE_NOTEBOOK.name)
     # the quick start reads the demo files as ../assets (relative to itself): the copy gets the same
     (home / "assets").symlink_to(ROOT / "assets", target_is_directory=True)
     settings = home / "settings"
@@ -289,6 +395,7 @@ def lab_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any
     env["JUPYTERLAB_WORKSPACES_DIR"] = str(workspaces)
     server = Server("jupyter lab", argv, port, home / "lab.log", nbdir, env)
     server.notebook = QUICK_START.name
+    server.runtime = home / "runtime"
     try:
         server.wait_ready("/static/favicons/favicon.ico")
         yield server
@@ -429,11 +536,11 @@ class ExplorerPage:
         return row.locator(".noUi-handle").first
 
     def number_box(self, description: str) -> Any:
-        """The number box beside the slider whose description is ``description``."""
+        """The number box (a text input: it can show a mix, "18-19") beside the slider called ``description``."""
         label = self.page.locator(f"{self.root} .widget-slider .widget-label", has_text=description).first
         return label.locator(
             "xpath=ancestor::div[contains(concat(' ', @class, ' '), ' widget-slider ')][1]/parent::div"
-            "//input[@type='number']"
+            "//div[contains(concat(' ', @class, ' '), ' fxnet-number ')]//input"
         ).first
 
 

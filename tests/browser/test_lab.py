@@ -19,13 +19,8 @@ ALL_RAN_JS = r"""
 """
 
 
-def menu(page, top: str, item: str) -> None:
-    """Click ``top`` in Lab's menu bar, then ``item`` in its menu."""
-    page.locator(".lm-MenuBar-itemLabel", has_text=re.compile(f"^{re.escape(top)}$")).click()
-    page.locator(".lm-Menu-itemLabel", has_text=re.compile(f"^{re.escape(item)}$")).click()
-
-
-def test_run_all_then_drag_the_table_width(lab_server, new_page, explorer_page, artifacts):
+def test_run_all_then_drag_the_table_width(lab_server, new_page, explorer_page, artifacts, lab_menu):
+    menu = lab_menu
     page, log = new_page(viewport={"width": 1600, "height": 1200})
     page.goto(f"{lab_server.base}/lab/tree/{lab_server.notebook}", wait_until="domcontentloaded", timeout=90_000)
     page.wait_for_selector(".jp-Notebook .jp-CodeCell", timeout=90_000)

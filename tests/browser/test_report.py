@@ -46,14 +46,18 @@ def test_offline_report_renders_the_widgets_with_no_console_error(offline_report
     assert page.locator(f"{live} .bqplot svg").count() > 0
     assert page.locator(f"{live} img.widget-image").first.evaluate("i => i.complete && i.naturalWidth > 0")
     ex.screenshot(artifacts / "report-live.png")
-    # a browser-side link still works without a kernel: the slider moves its number box (jslink)
+    # no kernel, no browser-side links (a page-side copy would reach a kernel as a person's change, issue 19):
+    # the slider moves alone and its number box keeps the saved value, as the page's note says
     handle = ex.slider_handle(ex.TABLE_WIDTH)
     box = ex.number_box(ex.TABLE_WIDTH)
     old = int(float(handle.get_attribute("aria-valuenow")))
     assert int(box.input_value()) == old
     handle.focus()
     page.keyboard.press("ArrowLeft")
-    page.wait_for_function("([el, v]) => +el.value === v", arg=[box.element_handle(), old - 1])
+    page.wait_for_function("([el, v]) => +el.getAttribute('aria-valuenow') === v",
+                           arg=[handle.element_handle(), old - 1])  # fmt: skip
+    assert int(box.input_value()) == old
+    assert "moves only that slider" in page.locator("#kernel-note").inner_text()
 
     assert log.blocked == [], f"the offline report asked the network for {log.blocked}"
     assert log.errors() == [], "console errors:\n" + "\n".join(log.errors())

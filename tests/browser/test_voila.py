@@ -57,7 +57,7 @@ def test_table_width_key_press_updates_every_view(voila_server, new_page, explor
     ex.wait_for("(s, t) => s.metrics.includes(t)", table)
     after = ex.snapshot()
     assert float(after["sliders"][ex.TABLE_WIDTH]) == new
-    assert int(ex.number_box(ex.TABLE_WIDTH).input_value()) == new  # the linked number box followed
+    assert int(ex.number_box(ex.TABLE_WIDTH).input_value()) == new  # the kernel wrote the number box
     assert f"table(s) of {2**old} x 8 b" not in after["metrics"]
     # the status line names the plan's widths: T<address bits>.<fraction bits> on every layer
     widths = re.findall(r"L\d+ W-?\d+\.-?\d+ A\d+ T(\d+)\.", after["status"])

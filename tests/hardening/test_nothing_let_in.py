@@ -133,7 +133,8 @@ def _report(names: list[str], classes: list[str], title: str) -> str:
 
     net = fw.Network.from_layers([([[4.0, -4.0, 1.0]], [0.0], "sigmoid")], input_names=names, classes=classes)
     img = np.random.default_rng(5).integers(0, 256, (6, 8, 3), dtype=np.uint8)
-    return report.report_html(Explorer(net, image=img), title=title)
+    ex = Explorer(net, image=img)
+    return report.report_html(ex.session, widget=ex, title=title)
 
 
 def test_report_escapes_every_user_text():

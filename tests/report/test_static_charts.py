@@ -59,7 +59,7 @@ def _explorer(plan: Plan) -> Explorer:
 def quiet() -> tuple[Explorer, BeautifulSoup]:
     """The demo plan on a crop of the demo belt: no event at all."""
     ex = _explorer(Plan.load(ASSETS / "plan.json", Network.load(ASSETS / "network.json")))
-    return ex, BeautifulSoup(report_html(ex), "html.parser")
+    return ex, BeautifulSoup(report_html(ex.session, widget=ex, summary=ex.summary()), "html.parser")
 
 
 @pytest.fixture(scope="module")
@@ -68,7 +68,7 @@ def noisy() -> tuple[Explorer, BeautifulSoup]:
     net = Network.load(ASSETS / "network.json")
     plan = Plan.load(ASSETS / "plan.json", net).replace(acc_bits=12, table_bits=6)
     ex = _explorer(plan)
-    return ex, BeautifulSoup(report_html(ex), "html.parser")
+    return ex, BeautifulSoup(report_html(ex.session, widget=ex, summary=ex.summary()), "html.parser")
 
 
 def test_static_colours_are_the_live_widgets() -> None:

@@ -56,3 +56,14 @@ def labelled_samples() -> tuple[np.ndarray, np.ndarray]:
     codes = rng.integers(0, 256, (60, 3)).astype(np.uint8)
     labels = (codes[:, 0].astype(int) > codes[:, 1].astype(int) + 20).astype(np.int64)
     return codes, labels
+
+
+@pytest.fixture(scope="session")
+def colour_net() -> Network:
+    """A 3-4-3 network (relu hidden layer, identity outputs): three produce classes by colour (invented)."""
+    rng = np.random.default_rng(8)
+    return Network.from_layers(
+        [(rng.normal(0, 2, (4, 3)), rng.normal(0, 0.3, 4), "relu"),
+         (rng.normal(0, 2, (3, 4)), np.zeros(3), "identity")],  # fmt: skip
+        classes=["unripe", "turning", "ripe"],
+    )

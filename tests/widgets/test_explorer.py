@@ -11,7 +11,7 @@ from widget_checks import assert_explorer_matches_kernel
 from fxnet_widgets.core.kernel import build_integer_network, emulate
 from fxnet_widgets.core.plan import CHOICES
 from fxnet_widgets.widgets import Explorer
-from fxnet_widgets.widgets.controls import CHOICE_FIELDS, SLIDER_FIELDS
+from fxnet_widgets.widgets.controls import CHOICE_FIELDS
 
 
 @pytest.fixture()
@@ -36,14 +36,14 @@ SLIDER_VALUES = {
 }
 
 
-@pytest.mark.parametrize("field", list(SLIDER_FIELDS))
+@pytest.mark.parametrize("field", list(SLIDER_VALUES))
 def test_each_slider_changes_views_as_the_kernel_says(explorer, field):
     s = explorer.session
     before = s.version
     for v in SLIDER_VALUES[field]:
         explorer.controls.sliders[field].value = v
         assert all(getattr(lp, field) == v for lp in explorer.plan.layers)
-        assert explorer.controls.boxes[field].value == v
+        assert explorer.controls.boxes[field].value == str(v)
         assert_explorer_matches_kernel(explorer)
     assert s.version == before + len(SLIDER_VALUES[field])
 
@@ -74,20 +74,24 @@ def test_layer_choice_acts_on_one_layer_and_controls_follow(explorer, fruit_plan
 
 def test_number_box_drives_the_slider_and_the_plan(explorer):
     c = explorer.controls
-    c.boxes["acc_bits"].value = 15
+    c.boxes["acc_bits"].value = "15"
     assert c.sliders["acc_bits"].value == 15
     assert [lp.acc_bits for lp in explorer.plan.layers] == [15, 15]
-    c.boxes["acc_bits"].value = 63  # beyond the contract's limit of 62: refused, said, snapped back
-    assert explorer.session.error == "accumulator width must be between 1 and 62, not 63"
-    assert c.boxes["acc_bits"].value == 15
+    c.boxes["acc_bits"].value = "63"  # beyond the contract's limit of 62: refused, said, snapped back
+    assert explorer.session.error == "accumulator width must be an integer between 1 and 62, not '63'"
+    assert c.boxes["acc_bits"].value == "15"
+    c.boxes["acc_bits"].value = "wide"
+    assert explorer.session.error == "accumulator width must be an integer between 1 and 62, not 'wide'"
+    assert c.boxes["acc_bits"].value == "15"
     assert [lp.acc_bits for lp in explorer.plan.layers] == [15, 15]
 
 
-def test_sliders_and_boxes_are_jslinked(explorer):
-    c = explorer.controls
-    linked = {(ln.source[0].model_id, ln.target[0].model_id) for ln in c.links}
-    for name in SLIDER_FIELDS:
-        assert (c.sliders[name].model_id, c.boxes[name].model_id) in linked
+def test_no_browser_side_links_between_controls(explorer):
+    """A jslink copies a value the kernel wrote into a partner, which sends it back as if a person had (issue 19)."""
+    from ipywidgets.embed import dependency_state
+
+    state = dependency_state([explorer.controls], drop_defaults=True)
+    assert [m for m in state.values() if m["model_name"] in ("LinkModel", "DirectionalLinkModel")] == []
 
 
 def test_safe_button_sets_guaranteed_width_and_removes_overflow(explorer, fruit_net):
@@ -214,16 +218,16 @@ def test_failing_view_shows_in_status_line_and_others_keep_working(explorer):
 
 
 def test_core_error_shows_in_status_line_and_views_keep_last_good(explorer, monkeypatch):
-    import fxnet_widgets.widgets.session as session_module
+    import fxnet_widgets.widgets.parts as parts_module
 
-    real = session_module.emulate
+    real = parts_module.emulate
 
     def refusing(net, plan, codes):
         if plan.layers[0].out_bits == 4:
             raise ValueError("layers[0]: refused for the test")
         return real(net, plan, codes)
 
-    monkeypatch.setattr(session_module, "emulate", refusing)
+    monkeypatch.setattr(parts_module, "emulate", refusing)
     good = explorer.plan
     explorer.controls.sliders["out_bits"].value = 4
     assert explorer.session.error == "ValueError: layers[0]: refused for the test"
@@ -360,22 +364,28 @@ def test_overlay_caption_says_how_many_pixels_differ(explorer):
     assert m2 != m and f">{m2} pixel" in explorer.preview.overlay_caption.value
 
 
-def test_metrics_panel_is_an_escaped_table_of_the_text(explorer):
+def test_metrics_panel_formats_the_session_figures(explorer):
+    """The panel lays out the structured figures of the result (no text parsed back), every text escaped."""
     import html
     import re
 
+    from fxnet_widgets.core.analysis.cost import hardware_cost
+    from fxnet_widgets.core.analysis.metrics import error_metrics
+    from fxnet_widgets.widgets.metrics import Row, rows_html
+
+    r = explorer.session.result
     value = explorer.metrics.html.value
     assert value.startswith("<table") and "<pre" not in value
     cells = [html.unescape(re.sub(r"<br>", "; ", c)) for c in re.findall(r"<t[dh][^>]*>(.*?)</t[dh]>", value)]
-    # every summary line is in the table, word for word (key and value cells joined back)
-    joined = "\n".join(cells)
-    for line in explorer.metrics.text.splitlines():
-        body = line.strip()
-        key, _, rest = body.partition(": ")
-        assert (body in joined) or (key in cells and rest in cells), line
-    from fxnet_widgets.widgets.metrics import metrics_table_html
-
-    assert "&lt;b&gt;" in metrics_table_html(["<b>", "  a: <i>"]) and "&lt;i&gt;" in metrics_table_html(["  a: <i>"])
+    # the confusion matrix of the samples, cell by cell, equals the analysis layer's own
+    want = error_metrics(r.samples.emulation, r.samples.labels).confusion
+    samples_fig = next(f for f in r.figures if f.name == "samples")
+    assert samples_fig.metrics.confusion == want
+    assert all(str(v) in cells for row in want for v in row)
+    cost = hardware_cost(explorer.session.network, r.plan)
+    assert r.cost.totals() == cost.totals()
+    assert any(f"total bits {cost.total_bits}" in c for c in cells)
+    assert "&lt;b&gt;" in rows_html([Row("<b>", depth=0), Row("a", ("<i>",))])
 
 
 def test_log_axes_have_at_most_five_decade_ticks(explorer):

@@ -77,30 +77,37 @@ def _update(comm_id: str, value: int) -> dict:
     return {"comm_id": comm_id, "data": {"method": "update", "state": {"value": value}, "buffer_paths": []}}
 
 
-def test_a_drag_with_the_linked_box_gets_no_value_echoed_back():
-    """The browser sends the slider's values and the jslinked box's copies (one late and stale): the
-    kernel computes the slider's last value and sends no slider or box value back (no bounce)."""
+def _text(comm_id: str, text: str) -> dict:
+    return {"comm_id": comm_id, "data": {"method": "update", "state": {"value": text}, "buffer_paths": []}}
+
+
+def test_a_drag_gets_no_slider_value_back_and_a_late_copy_is_dropped():
+    """The page sends the slider's values, then a late copy of an older box value (as a page-side link
+    would): the kernel computes the slider's last value, sends no slider value back (the page has it)
+    and drops the late copy (issue 19)."""
     km, kc = jupyter_client.manager.start_new_kernel(kernel_name="python3")
     seen: list = []
     try:
         start = json.loads(_run(kc, SETUP).strip().splitlines()[-1])
-        values = [17, 15, 13, 11, 9, 7]
-        for v in values:
+        _run(kc, "ex.plan = ex.plan.replace(acc_bits=13); ex.plan = ex.plan.replace(acc_bits=16)")  # two cells
+        for v in [17, 15, 11, 9, 7]:
             kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["id"], v)))
-            kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["box"], v)))
-        kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["box"], 13)))  # stale copy, late
-        kc.shell_channel.send(kc.session.msg("comm_msg", _update(start["box"], 7)))
+        kc.shell_channel.send(kc.session.msg("comm_msg", _text(start["box"], "7")))  # the box shows 7: an echo
         end = json.loads(_run(kc, REPORT, seen).strip().splitlines()[-1])
+        _run(kc, "ex.plan = ex.plan.replace(acc_bits=12); ex.plan = ex.plan.replace(acc_bits=18)")
+        kc.shell_channel.send(kc.session.msg("comm_msg", _text(start["box"], "12")))  # late copy of the older 12
+        late = json.loads(_run(kc, REPORT).strip().splitlines()[-1])
     finally:
         kc.stop_channels()
         km.shutdown_kernel(now=True)
     assert end["plan"] == [7, 7] and end["shown"] == [7, 7] and end["slider"] == 7
-    echoed = [
+    slider_sent = [
         m["content"]["data"]["state"]["value"]
         for m in seen
         if m["msg_type"] == "comm_msg"
-        and m["content"].get("comm_id") in (start["id"], start["box"])
+        and m["content"].get("comm_id") == start["id"]
         and m["content"]["data"].get("method") == "update"
         and "value" in m["content"]["data"].get("state", {})
     ]
-    assert echoed == []
+    assert slider_sent == []
+    assert late["plan"] == [18, 18] and late["shown"] == [18, 18] and late["error"] == ""

@@ -18,8 +18,9 @@ from fxnet_widgets.widgets import (
     StatusLinePanel,
     SweepProgressBar,
 )
+from fxnet_widgets.widgets.binning import exact_sums, histogram_edges
 from fxnet_widgets.widgets.events import log_heights
-from fxnet_widgets.widgets.session import default_plan, exact_sums, histogram_edges
+from fxnet_widgets.widgets.session import default_plan
 
 
 def test_views_created_alone_on_one_session_stay_in_step(fruit_net, fruit_plan, belt_image, labelled_samples):
@@ -203,7 +204,9 @@ def test_relu_and_three_class_network_in_the_explorer(belt_image):
     )
     ex = Explorer(net, image=belt_image)
     c = ex.controls
-    assert c.sliders["table_bits"].disabled and c.sliders["table_frac"].disabled  # no tables in this network
+    # no tables in this network: no table controls; the output fraction (relu/identity) instead
+    assert all(c.rows[f].layout.display == "none" for f in ("table_bits", "table_frac"))
+    assert c.rows["out_frac"].layout.display == ""
     c.sliders["acc_bits"].value = 9
     c.sliders["out_bits"].value = 6
     emu = emulate(net, ex.plan, belt_image)

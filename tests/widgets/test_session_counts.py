@@ -2,7 +2,8 @@
 
 import numpy as np
 
-from fxnet_widgets.widgets.session import Session, exact_sums
+from fxnet_widgets.widgets.binning import exact_sums
+from fxnet_widgets.widgets.session import Session
 
 
 def _straightforward_counts(emus, layer, neuron, edges):

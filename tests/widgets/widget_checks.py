@@ -68,14 +68,23 @@ def assert_explorer_matches_kernel(ex, image_codes: np.ndarray | None = None) ->
         assert np.array_equal(sp.heatmap.color, want.astype(np.float32))
         assert sp.heatmap.color.dtype == np.float32
         assert np.array_equal(sp.heatmap.x, c.astype(np.float32))
-    # event bars: the kernel's counts on the data, summed over image and samples
+    # event bars: the kernel's counts on the data, summed over image and samples, under honest names
+    # (semantics.md: relu's low clamp is its zero, its high clamp and identity's ends clamp the output)
     counts = ex.events.counts
+    rows = {k: i for i, k in enumerate(ex.events.shown)}
     col = 0
-    for li in range(len(net.layers)):
-        for j in range(net.layers[li].n_out):
-            for row, ev in enumerate(("acc_overflow", "table_low", "table_high")):
-                assert counts[row, col] == sum(int(m.events[li][ev][j]) for m in emus)
-            assert counts[3, col] == int(emus[0].events[li]["weight_clip"][j])
+    for li, L in enumerate(net.layers):
+        for j in range(L.n_out):
+            low, high, ov = (sum(int(m.events[li][ev][j]) for m in emus) for ev in ("table_low", "table_high",
+                                                                                   "acc_overflow"))  # fmt: skip
+            assert counts[rows["acc_overflow"], col] == ov
+            if L.activation in ("sigmoid", "tanh"):
+                assert (counts[rows["table_low"], col], counts[rows["table_high"], col]) == (low, high)
+            elif L.activation == "relu":
+                assert (counts[rows["off"], col], counts[rows["output_clamp"], col]) == (low, high)
+            else:
+                assert counts[rows["output_clamp"], col] == low + high
+            assert counts[rows["weight_clip"], col] == int(emus[0].events[li]["weight_clip"][j])
             col += 1
     # histograms: every sample counted once per neuron
     total = sum(m.n for m in emus)

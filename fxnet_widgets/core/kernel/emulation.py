@@ -93,10 +93,10 @@ class Emulation:
 
         Where no accumulator overflow happened they equal :meth:`neuron_acc`.
         """
-        shifted, offset = self._neuron_shifted(layer, neuron)
+        shifted, offset = self.neuron_shifted(layer, neuron)
         return np.add(shifted, np.int64(offset), dtype=np.int64)
 
-    def _neuron_shifted(self, layer: int, neuron: int) -> tuple[np.ndarray, int]:
+    def neuron_shifted(self, layer: int, neuron: int) -> tuple[np.ndarray, int]:
         """``(d, offset)`` with ``s = d + offset``; ``d`` (N,) is non-negative, read-only, small dtype."""
         o = self._outs[layer]
         return o._shifted[neuron], int(o.layer.sum_min[neuron])

@@ -220,7 +220,7 @@ def calibration_plans(network: Network, n: int, seed: int) -> list[Plan]:
             wf = wb - int(rng.integers(1, 4))
             doc: dict[str, Any] = {"weight_bits": wb, "weight_frac": wf, "acc_bits": 62, "acc_overflow": overflow,
                                    "index_round": index_round, "out_bits": int(rng.integers(1, 11))}  # fmt: skip
-            if L.activation in ("sigmoid", "tanh"):
+            if L.has_table:
                 doc["table_bits"] = int(rng.integers(1, 13))
                 doc["table_frac"] = doc["table_bits"] - int(rng.integers(3, 6))
                 in_frac = doc["out_bits"] if L.activation == "sigmoid" else doc["out_bits"] - 1

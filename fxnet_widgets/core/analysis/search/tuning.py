@@ -37,7 +37,7 @@ class Move(NamedTuple):
 def move(network: Network, plan: Plan, layer: int, kind: str, bits: int) -> Move | None:
     """``plan`` with one width of ``layer`` reduced by ``bits`` (see :func:`tune`); None if impossible."""
     lp = plan.layers[layer]
-    table = network.layers[layer].activation in ("sigmoid", "tanh")
+    table = network.layers[layer].has_table
     v: dict[str, Any]
     if kind == "weight_lsb":
         v = {"weight_bits": lp.weight_bits - bits, "weight_frac": lp.weight_frac - bits}

@@ -1,0 +1,110 @@
+"""The parts of a session result, each computed from the data and one plan (pure functions).
+
+Image, samples, slices and cube run the kernel (:func:`~fxnet_widgets.core.kernel.emulate`,
+which caches by value); :func:`data_figures` turns one data set's emulation into
+its figures (error metrics, the float-versus-fixed agreement matrix, argmax ties).
+"""
+
+from __future__ import annotations
+
+from itertools import combinations
+
+import numpy as np
+
+from ..core.analysis.metrics import error_metrics
+from ..core.kernel import Emulation, emulate
+from ..core.plan import Plan
+from ..render.raster import DownscaledImage
+from .data import SessionData
+from .results import SLICES, CubeResult, DataFigures, ImageResult, SampleResult, SliceResult
+
+__all__ = ["image_part", "samples_part", "slices_part", "cube_part", "data_figures", "argmax_ties"]
+
+
+def image_part(data: SessionData, plan: Plan, full_resolution: bool) -> ImageResult:
+    assert data.image is not None and data.preview is not None
+    if full_resolution or not data.preview.downscaled:
+        codes, factor = data.image, 1
+    else:
+        codes, factor = data.preview.codes, data.preview.factor
+    emu = emulate(data.network, plan, codes)
+    h, w = data.image.shape[:2]
+    note = DownscaledImage(codes, factor, (h, w)).note
+    labels = None
+    if data.image_labels is not None:
+        labels = data.image_labels if factor == 1 else data.image_labels[::factor, ::factor]
+    return ImageResult(codes, emu.decisions, emu.float_decisions, factor, (h, w), note, emu, labels)
+
+
+def samples_part(data: SessionData, plan: Plan) -> SampleResult:
+    assert data.samples is not None
+    emu = emulate(data.network, plan, data.samples)
+    return SampleResult(data.samples, data.labels, emu.decisions, emu.float_decisions, emu)
+
+
+def slices_part(data: SessionData, plan: Plan, pos: tuple[int, int, int],
+                sample_decisions: np.ndarray | None) -> tuple[SliceResult, ...]:  # fmt: skip
+    """The three slices at ``pos``; without labels the samples are coloured by ``sample_decisions``."""
+    c = data.slice_codes
+    n = c.size
+    dt = np.uint8 if data.network.input_bits <= 8 else np.uint16
+    stack = np.empty((3 * n, n, 3), dtype=dt)
+    for si, (_, xi, yi, fi) in enumerate(SLICES):
+        block = stack[si * n : (si + 1) * n]
+        block[..., xi] = c[None, :]
+        block[..., yi] = c[:, None]
+        block[..., fi] = pos[fi]
+    emu = emulate(data.network, plan, stack)
+    fx, fl = emu.decisions, emu.float_decisions
+    tol = max(1, int(c[1] - c[0]) * 4) if n > 1 else 1
+    out = []
+    for si, (name, xi, yi, fi) in enumerate(SLICES):
+        if data.samples is not None:
+            near = np.abs(data.samples[:, fi].astype(np.int64) - pos[fi]) <= tol
+            px = data.samples[near, xi].astype(np.int64)
+            py = data.samples[near, yi].astype(np.int64)
+            cls = data.labels if data.labels is not None else sample_decisions
+            assert cls is not None
+            pc = cls[near]
+        else:
+            px = py = pc = np.zeros(0, dtype=np.int64)
+        out.append(
+            SliceResult(name, xi, yi, fi, int(pos[fi]), c, c, fx[si * n : (si + 1) * n], fl[si * n : (si + 1) * n],
+                        px, py, np.asarray(pc, dtype=np.int64), tol)
+        )  # fmt: skip
+    return tuple(out)
+
+
+def cube_part(data: SessionData, plan: Plan) -> CubeResult:
+    assert data.cube_input is not None
+    emu = emulate(data.network, plan, data.cube_input)
+    n = data.cube_codes.size
+    return CubeResult(data.cube_codes, emu.decisions.reshape(n, n, n), emu.float_decisions.reshape(n, n, n))
+
+
+def argmax_ties(out_codes: np.ndarray) -> dict[tuple[int, int], int]:
+    """Per class pair ``(i, j)``, ``i < j``: decisions where outputs i and j both hold the largest code.
+
+    There the argmax takes the lower index (the contract's rule), so fixed point
+    silently prefers class ``i``. One output (a threshold) has no ties: ``{}``.
+
+    >>> argmax_ties(np.array([[3, 3, 1], [2, 5, 5], [4, 4, 4], [1, 0, 0]]))
+    {(0, 1): 2, (0, 2): 1, (1, 2): 2}
+    """
+    codes = np.asarray(out_codes).reshape(-1, np.shape(out_codes)[-1])
+    n_out = codes.shape[1]
+    if n_out < 2:
+        return {}
+    top = codes == codes.max(axis=1, keepdims=True)
+    tied = top[top.sum(axis=1) > 1]
+    return {(i, j): int(np.count_nonzero(tied[:, i] & tied[:, j])) for i, j in combinations(range(n_out), 2)}
+
+
+def data_figures(name: str, emulation: Emulation, labels: np.ndarray | None, n_classes: int) -> DataFigures:
+    """Error metrics, the n x n float-versus-fixed agreement and the argmax ties of one data set."""
+    m = error_metrics(emulation, labels)
+    fl = np.asarray(emulation.float_decisions).reshape(-1)
+    fx = np.asarray(emulation.decisions).reshape(-1)
+    pairs = np.bincount(fl * n_classes + fx, minlength=n_classes * n_classes).reshape(n_classes, n_classes)
+    agreement = tuple(tuple(int(v) for v in row) for row in pairs)
+    return DataFigures(name, m, agreement, argmax_ties(emulation.out_codes))
