@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 from widget_checks import assert_explorer_matches_kernel
 
-from fxnet_widgets.core.kernel import quantise
+from fxnet_widgets.core.kernel import build_integer_network
 from fxnet_widgets.core.network import Network
 from fxnet_widgets.widgets import Explorer, PlanControlsPanel, Session
 
@@ -66,7 +66,7 @@ def test_a_page_drag_is_applied_and_no_slider_value_goes_back(explorer, sent):
 
 
 def test_an_echo_of_what_the_kernel_shows_is_never_applied(explorer, fruit_plan):
-    """"All layers" over layers that differ: the page sending back the shown value must not flatten them."""
+    """ "All layers" over layers that differ: the page sending back the shown value must not flatten them."""
     c = explorer.controls
     mixed = fruit_plan.replace(layer=0, acc_bits=20).replace(layer=1, acc_bits=19)
     explorer.plan = mixed
@@ -165,5 +165,5 @@ def test_controls_over_mixed_layer_kinds_apply_where_the_field_exists(belt_image
     assert c.choices["index_round"].layout.display == "none"
     c.layer.value = 1  # the sigmoid layer alone: table controls, no output fraction
     assert c.rows["table_bits"].layout.display == "" and c.rows["out_frac"].layout.display == "none"
-    assert quantise(net, ex.plan) is not None
+    assert build_integer_network(net, ex.plan) is not None
     assert_explorer_matches_kernel(ex)
