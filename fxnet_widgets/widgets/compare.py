@@ -101,8 +101,8 @@ def compare_plans(session: Any, plan_a: Plan, plan_b: Plan) -> PlanComparison:
     res = session.result
     rows: list[tuple[str, float | None, float | None]] = []
     cost_a, cost_b = hardware_cost(net, plan_a), hardware_cost(net, plan_b)
-    ta, tb = cost_a.totals(), cost_b.totals()
-    rows += [(f"cost {k}", ta[k], tb[k]) for k in (*COST_KEYS, "latency")]
+    rows += [(f"cost {k}", cost_a.value(k), cost_b.value(k)) for k in COST_KEYS]
+    rows.append(("cost latency", cost_a.latency, cost_b.latency))
     events = {p: dict.fromkeys(EVENT_NAMES, 0) for p in ("a", "b")}
     img_codes = img_a = img_b = sam_a = sam_b = None
     parts = []
