@@ -7,7 +7,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from fxnet_widgets.core.analysis import SerialExecutor, error_metrics, tune
+from fxnet_widgets.core.analysis import SerialExecutor, error_metrics, sweep, tune
 from fxnet_widgets.core.analysis.search.refining import check_refine, compare
 from fxnet_widgets.core.images import read_image
 from fxnet_widgets.core.kernel import build_integer_network, emulate
@@ -80,3 +80,19 @@ def test_refine_settings_are_checked():
         check_refine("rounding", {"speed": 1})
     with pytest.raises(ValueError, match=r"^refine_options must be None without refine, not given$"):
         check_refine(False, {"tries": 1})
+
+
+def test_sweep_refine_keeps_the_better_figures(demo):
+    net, codes, _, _ = demo
+    grid = {"weight_frac": [1, 2]}
+    plain = sweep(net, codes[:2000], grid, executor=SerialExecutor())
+    got = sweep(net, codes[:2000], grid, executor=SerialExecutor(), refine="rounding", refine_options=OPTIONS)
+    assert [r.plan for r in got] == [r.plan for r in plain]
+    assert any(r.refined for r in got)
+    original = net.decide(net.predict(codes[:2000]))
+    for a, b in zip(plain, got):
+        assert b.strict_mismatch <= a.strict_mismatch
+        if b.refined:
+            refined = Network.from_dict(dict(b.refined_network))
+            e = emulate(refined, b.plan, codes[:2000])
+            assert b.mismatch == int(np.count_nonzero(e.decisions != original)) < a.mismatch
