@@ -85,6 +85,9 @@ def _check_lines(check: dict[str, Any]) -> list[str]:
             lines.append(f"  required clock {got.clock_mhz:g} MHz: {'met' if got.meets_clock else 'NOT met'}")
     else:
         lines.append("  maximum clock: not timed (no place and route for this target)")
+    if got.clock_mhz is not None:
+        lines.append("  (the estimates are calibrated on datapaths generated without a clock: pipelining for "
+                     "--clock adds flip-flops they do not count)")  # fmt: skip
     lines.append("  tools: " + "; ".join(got.tools.values()))
     lines.append(f"  {got.caution}")
     return lines
@@ -148,4 +151,6 @@ def run(args: argparse.Namespace) -> int:
                   "fxnet export / fxnet datapath; with the original network the plan misses the budget)")
         elif args.refine:
             print("refinement was not needed: the plan is for the original network")
+        if net_out is None and os.path.exists(network_path(out)):
+            print(f"note: {network_path(out)} is from an earlier run; this plan is for the original network")
     return 0
