@@ -96,3 +96,13 @@ def test_sweep_refine_keeps_the_better_figures(demo):
             refined = Network.from_dict(dict(b.refined_network))
             e = emulate(refined, b.plan, codes[:2000])
             assert b.mismatch == int(np.count_nonzero(e.decisions != original)) < a.mismatch
+
+
+def test_tune_refine_both_fine_tunes_then_rounds(demo):
+    net, codes, _, _ = demo
+    small = codes[:2000]
+    res = tune(net, small, 0.002, executor=SerialExecutor(), refine="both", refine_options={"tries": 2, "epochs": 40})
+    assert res.verified and res.refined and res.refinement["method"] == "both"
+    assert res.refinement["steps"][0].startswith("fine-tuning: ") and res.refinement["steps"][1].startswith("rounding")
+    e = emulate(res.network, res.plan, small)
+    assert int(np.count_nonzero(e.decisions != net.decide(net.predict(small)))) <= 0.002 * len(small)
