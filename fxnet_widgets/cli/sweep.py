@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from ..core.analysis.cost import COST_KEYS
+from ..core.analysis.cost import CALIBRATED_KEYS, COST_KEYS
 from ..core.analysis.metrics import check_labels
 from ..core.analysis.search import SerialExecutor, local_pool, pareto_front, parse_grid, sweep, text_progress
 from ..core.fileio import atomic_write_json, load_npy
@@ -62,12 +62,30 @@ def add_common(p: argparse.ArgumentParser) -> None:
     p.add_argument("--workers", type=int, default=None, metavar="N", help="worker processes (0: this process)")
     p.add_argument("--json", action="store_true", help="print the summary as one JSON object")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.add_argument("--target", default="ice40-up5k", metavar="T",
+                   help="device of the calibrated estimates --cost luts|ffs|brams (default ice40-up5k)")  # fmt: skip
+    p.add_argument("--refine", nargs="?", const="rounding", choices=("rounding", "both"), default=None,
+                   help="refine the integers of plans that miss (rounding, the default, or both)")  # fmt: skip
 
 
 def check_cost(key: str) -> str:
     if key not in COST_KEYS:
         raise CliError(f"fxnet: --cost must be one of {', '.join(COST_KEYS)}, not {key!r}")
     return key
+
+
+def check_target(command: str, target: str, cost: str) -> str:
+    """``--target``: a synthesis target; with a calibrated ``--cost``, one with a calibration."""
+    from ..core.synth import TARGETS
+    from ..core.synth.calibration import calibrations
+
+    if target not in TARGETS:
+        raise CliError(f"fxnet {command}: --target must be one of {', '.join(TARGETS)}, not {target!r}")
+    cals = calibrations()
+    if cost in CALIBRATED_KEYS and target not in cals:
+        raise CliError(f"fxnet {command}: --target must be a calibrated target with --cost {cost} "
+                       f"({', '.join(sorted(cals)) or 'none'}), not {target!r}")  # fmt: skip
+    return target
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -97,6 +115,7 @@ def run(args: argparse.Namespace) -> int:
     labels = load_labels(args.labels, net, codes) if args.labels else None
     out = check_output_path(args.output, ".json")
     cost = check_cost(args.cost)
+    target = check_target("sweep", args.target, cost)
     layer = None
     if args.layer is not None:
         if not 1 <= args.layer <= len(net.layers):
@@ -106,8 +125,8 @@ def run(args: argparse.Namespace) -> int:
     try:
         records = sweep(
             net, codes, grid, base=base, layer=layer, labels=labels, safe_acc=not args.no_safe_acc,
-            keep_range=not args.no_keep_range, cost=cost,
-            executor=ex, progress=progress_for(args),
+            keep_range=not args.no_keep_range, cost=cost, cost_options={"target": target},
+            executor=ex, progress=progress_for(args), refine=args.refine or False,
         )  # fmt: skip
     finally:
         if ex is not None:
@@ -122,6 +141,8 @@ def run(args: argparse.Namespace) -> int:
         "grid": grid,
         "layer": args.layer,
         "cost_key": cost,
+        "target": target,
+        "refine": args.refine,
         "records": [r.to_dict() for r in records],
         "pareto": [r.index for r in front],
     }
@@ -135,7 +156,7 @@ def run(args: argparse.Namespace) -> int:
                 "refused": refused,
                 "pareto": [
                     {"settings": dict(r.settings), "cost": r.cost, "mismatch": r.mismatch,
-                     "mismatch_fraction": r.mismatch_fraction}
+                     "mismatch_fraction": r.mismatch_fraction, "refined": r.refined}
                     for r in front
                 ],
             }  # fmt: skip
@@ -146,6 +167,13 @@ def run(args: argparse.Namespace) -> int:
         print(f"sweep of {len(records)} plans ({refused} refused by the kernel); Pareto front by {cost} and mismatch:")
         for r in front:
             settings = ", ".join(f"{k}={v}" for k, v in r.settings)
-            print(f"  {settings}: {cost} {r.cost}, mismatch {r.mismatch} ({100 * (r.mismatch_fraction or 0):.4f} %)")
+            print(f"  {settings}: {cost} {r.cost}, mismatch {r.mismatch} ({100 * (r.mismatch_fraction or 0):.4f} %)"
+                  + (" (refined integers)" if r.refined else ""))  # fmt: skip
+        if args.refine:
+            n_ref = sum(1 for r in records if r.refined)
+            print(f"refined ({args.refine}): {n_ref} plans met fewer differences with refined integers; their "
+                  "networks are in the records (refined_network), compared with the original float")  # fmt: skip
+        if cost in CALIBRATED_KEYS:
+            print(f"{cost}: calibrated estimates for {target}, not synthesis results")
         print(f"wrote {out}")
     return 0

@@ -131,5 +131,5 @@ def test_tune_errors(files, capsys):
     code, _, err = cli(capsys, "tune", d / "net.json", d / "img.png", "--max-mismatch", "5", "-o", d / "t.json")
     assert code == 2 and err == "fxnet tune: --max-mismatch must be a fraction between 0 and 1, not '5'\n"
     code, _, err = cli(capsys, "tune", d / "net.json", d / "img.png", "--max-mismatch", "0.1", "-o", d / "t.json",
-                       "--cost", "luts")  # fmt: skip
-    assert code == 2 and err.startswith("fxnet: --cost must be one of total_bits, ") and err.endswith(", not 'luts'\n")
+                       "--cost", "gates")  # fmt: skip
+    assert code == 2 and err.startswith("fxnet: --cost must be one of total_bits, ") and err.endswith(", not 'gates'\n")

@@ -39,6 +39,7 @@ from .grid import parse_grid
 from .pareto import pareto_front
 from .progress import Progress, text_progress
 from .records import SweepRecord
+from .refining import REFINE_METHODS, RefineSettings
 from .sweeps import sweep
 from .tuning import TUNE_MOVES, Move, TuneResult, TuneStep, tune
 
@@ -46,6 +47,8 @@ __all__ = [
     "INLINE_WORK",
     "Move",
     "PlanTask",
+    "REFINE_METHODS",
+    "RefineSettings",
     "Progress",
     "SerialExecutor",
     "SweepRecord",

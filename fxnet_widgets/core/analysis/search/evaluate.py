@@ -125,7 +125,7 @@ def check_cost_key(cost: str) -> str:
 def check_cost_options(options: Mapping[str, Any] | None) -> dict[str, Any]:
     """Checked keyword arguments of :func:`hardware_cost`."""
     opts = dict(options or {})
-    allowed = ("multipliers", "multiplier_size", "block_bits", "pipeline_stages")
+    allowed = ("multipliers", "multiplier_size", "block_bits", "pipeline_stages", "target")
     for k in opts:
         if k not in allowed:
             raise ValueError(f"cost_options key must be one of {', '.join(allowed)}, not {k!r}")

@@ -30,6 +30,9 @@ class SweepRecord:
     ties : decisions of several outputs decided by the lowest-index rule (two or more top codes equal)
     tied_agreeing : those of them that agree with float (by the index order, not by the codes)
     error : why the kernel refused the plan (then every metric is None/empty)
+    refined_network : with ``refine=``, the document of the refined network these figures are of
+        (weights exactly representable under ``plan``; every figure against the original float), else None
+    refinement : with ``refined_network``, the refinement's summary (:meth:`Refinement.to_dict`, no timing)
     """
 
     index: int
@@ -47,6 +50,13 @@ class SweepRecord:
     error: str | None = None
     ties: int | None = None
     tied_agreeing: int | None = None
+    refined_network: Mapping[str, Any] | None = field(default=None, hash=False)
+    refinement: Mapping[str, Any] | None = field(default=None, hash=False)
+
+    @property
+    def refined(self) -> bool:
+        """True when the figures are those of a refined network (:attr:`refined_network`)."""
+        return self.refined_network is not None
 
     @property
     def strict_mismatch(self) -> int | None:
@@ -78,4 +88,7 @@ class SweepRecord:
             "ties": self.ties,
             "tied_agreeing": self.tied_agreeing,
             "plan": self.plan.to_dict(),
+            "refined": self.refined,
+            "refinement": None if self.refinement is None else dict(self.refinement),
+            "refined_network": None if self.refined_network is None else dict(self.refined_network),
         }

@@ -13,6 +13,7 @@ from .executors import Runner
 from .grid import apply_settings, check_grid
 from .progress import Progress
 from .records import SweepRecord
+from .refining import Reference, check_refine, refine_record
 
 __all__ = ["sweep"]
 
@@ -31,6 +32,8 @@ def sweep(
     cost_options: Mapping[str, Any] | None = None,
     executor: Any = None,
     progress: Progress | None = None,
+    refine: bool | str = False,
+    refine_options: Mapping[str, Any] | None = None,
 ) -> list[SweepRecord]:
     """Evaluate every combination of ``grid`` on the data; one record per plan.
 
@@ -66,6 +69,14 @@ def sweep(
         :class:`concurrent.futures.Executor`, or a ``dask.distributed.Client``.
     progress
         ``progress(done, total)`` after each finished chunk (see :func:`text_progress`).
+    refine, refine_options
+        ``"rounding"`` (or True) or ``"both"``: every evaluated plan with a differing decision
+        gets a bounded :func:`~fxnet_widgets.core.refine.refine` of its integers (as in
+        :func:`tune`; ``refine_options`` of :class:`RefineSettings`, ``tries`` unused), in this
+        process after the evaluation; when the refined network has fewer differing decisions
+        (against the *original* float, ties counted as in :func:`tune`) and no more accumulator
+        overflows, its figures replace the plan's and the record carries ``refined_network``.
+        About a second per plan on 20,000 samples: refine small grids.
     """
     if not isinstance(network, Network):
         raise TypeError(f"network must be a Network, not {type(network).__name__}")
@@ -75,6 +86,7 @@ def sweep(
     n_layers = len(network.layers)
     if layer is not None and (isinstance(layer, bool) or not isinstance(layer, int) or not 0 <= layer < n_layers):
         raise ValueError(f"layer must be None or an index from 0 to {n_layers - 1}, not {layer!r}")
+    refining = check_refine(refine, refine_options)
     flat, lab = prepare_data(network, codes, labels)
     base = base_plan(network, base, flat, "base")
     names = list(g)
@@ -91,4 +103,14 @@ def sweep(
         tasks.append(PlanTask(i, settings, plan.to_dict(), derive))
     with Runner(executor, len(tasks) * flat.shape[0]) as runner:
         records = evaluate(runner, network, flat, lab, tasks, cost, opts, progress)
+    if refining is not None:
+        ref = Reference(network, flat, refining)
+        for k, r in enumerate(records):
+            if not r.ok or not r.strict_mismatch:
+                continue
+            rr = refine_record(ref, lab, r, r.index, cost, opts)
+            if rr is not None and (rr.strict_mismatch or 0) < r.strict_mismatch and (
+                rr.events.get("acc_overflow", 0) <= r.events.get("acc_overflow", 0)
+            ):
+                records[k] = rr
     return sorted(records + refused, key=lambda r: r.index)

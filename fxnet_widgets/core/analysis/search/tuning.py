@@ -16,6 +16,7 @@ from .evaluate import PlanTask, argmax_ties, base_plan, check_cost_key, check_co
 from .executors import Runner
 from .progress import Progress
 from .records import SweepRecord
+from .refining import Reference, check_refine, compare, refine_record
 
 __all__ = ["TUNE_MOVES", "Move", "TuneStep", "TuneResult", "tune", "move"]
 
@@ -81,6 +82,7 @@ class TuneStep:
     bits: int
     cost: int
     mismatch: int
+    refined: bool = False  # the move met the budget only with refined integers (``tune(refine=...)``)
 
 
 @dataclass(frozen=True, eq=False)
@@ -98,6 +100,10 @@ class TuneResult:
     metrics, cost : verification: a final emulation of ``plan`` on the data, and its cost
     verified : the final emulation meets the budget with no accumulator overflow
     local_minimum : every one-bit move of :data:`TUNE_MOVES` from ``plan`` breaks the budget or is impossible
+        (with ``refine``: also after refinement, which must have been tried on each)
+    network : the network ``plan`` is for: the refined network when the answer needed refinement
+        (weights exactly representable under ``plan``), else the given network
+    refinement : the answer's refinement summary (:meth:`Refinement.to_dict`, no timing), or None
     """
 
     plan: Plan
@@ -110,6 +116,13 @@ class TuneResult:
     cost: HardwareCost
     verified: bool
     local_minimum: bool
+    network: Network | None = None
+    refinement: dict[str, Any] | None = None
+
+    @property
+    def refined(self) -> bool:
+        """True when the answer's figures are those of a refined network (:attr:`network`)."""
+        return self.refinement is not None
 
     def summary(self) -> str:
         """A few lines: budget, start and answer cost, the answer's disagreement, its plan."""
@@ -122,6 +135,11 @@ class TuneResult:
             f"({100 * self.metrics.mismatch_fraction:.4f} %); verified {'yes' if self.verified else 'NO'}; "
             f"local minimum {'yes' if self.local_minimum else 'no'}",
         ]
+        if self.refinement is not None:
+            n_ref = sum(1 for s in self.steps if s.refined)
+            lines.append(f"  refined integers ({self.refinement['method']}): the answer holds only with the "
+                         f"refined network ({n_ref} of the moves needed refinement), compared with the original "
+                         "float")  # fmt: skip
         for i, lp in enumerate(self.plan.layers):
             lines.append(f"  layer {i + 1}: {lp!r}")
         return "\n".join(lines)
@@ -139,6 +157,8 @@ class TuneResult:
             "cost": self.cost.to_dict(),
             "verified": self.verified,
             "local_minimum": self.local_minimum,
+            "refined": self.refined,
+            "refinement": self.refinement,
         }
 
 
@@ -154,6 +174,8 @@ def tune(
     executor: Any = None,
     progress: Progress | None = None,
     max_rounds: int = 500,
+    refine: bool | str = False,
+    refine_options: Mapping[str, Any] | None = None,
 ) -> TuneResult:
     """The cheapest plan found that meets an error budget on the data.
 
@@ -178,6 +200,21 @@ def tune(
     ways breaks the budget or is impossible (``local_minimum``). It is a local
     search: a cheaper acceptable plan elsewhere is not ruled out. Deterministic:
     the same answer whatever executor runs it.
+
+    With ``refine="rounding"`` (or True) or ``"both"``, a candidate that misses the
+    budget with plain rounding gets a cheap :func:`~fxnet_widgets.core.refine.refine`
+    of its integers on the data (a seeded subset of ``samples``; bounded ``steps``
+    and ``epochs``; ``refine_options``: ``samples``, ``steps``, ``epochs``,
+    ``budget_s``, ``tries``, ``seed``, see :class:`RefineSettings`), and is
+    acceptable when the refined network meets the budget with no accumulator
+    overflow on all of ``codes``, its decisions compared with the *original*
+    network's float decisions. Refinement starts at the plain search's local
+    minimum (so the answer is never costlier than without it); from there each
+    round refines at most ``tries`` failing candidates cheaper than the best plain
+    one, nearest misses first (fewest differing decisions, then cost), and takes
+    the cheapest that passes; every candidate is refined from the given network's float
+    weights. The answer's :attr:`TuneResult.network` is then the refined network;
+    its cost is measured on it. Deterministic unless ``budget_s`` is given.
     """
     if not isinstance(network, Network):
         raise TypeError(f"network must be a Network, not {type(network).__name__}")
@@ -189,6 +226,9 @@ def tune(
     opts = check_cost_options(cost_options)
     flat, lab = prepare_data(network, codes, labels)
     start = base_plan(network, start, flat, "start")
+    settings = check_refine(refine, refine_options)
+    ref = Reference(network, flat, settings) if settings is not None else None
+    refined_seen: dict[Plan, SweepRecord | None] = {}
 
     n = max(1, flat.shape[0])
 
@@ -211,6 +251,15 @@ def tune(
             records.extend(got)
             return [seen[p] for p in plans]
 
+        def refined(p: Plan) -> SweepRecord | None:
+            if p not in refined_seen:
+                assert ref is not None
+                got = refine_record(ref, lab, seen[p], len(records), cost, opts)
+                refined_seen[p] = got
+                if got is not None:
+                    records.append(got)
+            return refined_seen[p]
+
         (cur,) = run([start])
         if not acceptable(cur):
             why = (
@@ -224,6 +273,7 @@ def tune(
                 f"overflow), not {why}; give a wider start"
             )
         plan = start
+        refining = False  # plain rounds first, to their local minimum; then rounds with refinement
         for _ in range(max_rounds):
             cands = [m for layer in range(len(network.layers)) for kind in TUNE_MOVES for d in STEPS
                      if (m := move(network, plan, layer, kind, d)) is not None]  # fmt: skip
@@ -235,20 +285,50 @@ def tune(
                     key = (r.cost, _width_sum(c.plan), order)
                     if best is None or key < best[0]:
                         best = (key, c, r)
+            if refining:
+                assert settings is not None
+                failing = sorted(
+                    (r.strict_mismatch or 0, r.cost, _width_sum(c.plan), order, c)
+                    for order, (c, r) in enumerate(zip(cands, recs))
+                    if r.ok and r.cost is not None and not acceptable(r)
+                    and (best is None or (r.cost, _width_sum(c.plan), order) < best[0])
+                )  # fmt: skip
+                for _, _, ws, order, c in failing[: settings.tries]:
+                    rr = refined(c.plan)
+                    if rr is not None and acceptable(rr):
+                        assert rr.cost is not None
+                        key = (rr.cost, ws, order)
+                        if best is None or key < best[0]:
+                            best = (key, c, rr)
             if best is None:
-                break
+                if settings is None or refining:
+                    break
+                refining = True
+                continue
             _, chosen, cur = best
             plan = chosen.plan
             assert cur.cost is not None and cur.mismatch is not None
-            steps.append(TuneStep(chosen.kind, chosen.layer, chosen.bits, cur.cost, cur.mismatch))
+            steps.append(TuneStep(chosen.kind, chosen.layer, chosen.bits, cur.cost, cur.mismatch, cur.refined))
     one_bit = [m.plan for layer in range(len(network.layers)) for kind in TUNE_MOVES
                if (m := move(network, plan, layer, kind, 1)) is not None]  # fmt: skip
     local_min = all(p in seen and not acceptable(seen[p]) for p in one_bit)
-    result = emulate(network, plan, codes)
-    metrics = error_metrics(result, labels)
-    hw = hardware_cost(network, plan, **opts)
-    _, tied_agreeing = argmax_ties(result.out_codes, result.decisions, result.float_decisions)
+    if settings is not None:
+        local_min = local_min and all(p in refined_seen and ((rp := refined_seen[p]) is None or not acceptable(rp))
+                                      for p in one_bit)  # fmt: skip
+    answer = network
+    if cur.refined_network is not None:
+        answer = Network.from_dict(dict(cur.refined_network))
+        assert ref is not None
+        result = emulate(answer, plan, codes)  # against the ORIGINAL network's float, not the refined one's
+        metrics = compare(result, ref.out, ref.decisions, labels)
+        _, tied_agreeing = argmax_ties(result.out_codes, result.decisions, ref.decisions)
+    else:
+        result = emulate(network, plan, codes)
+        metrics = error_metrics(result, labels)
+        _, tied_agreeing = argmax_ties(result.out_codes, result.decisions, result.float_decisions)
+    hw = hardware_cost(answer, plan, **opts)
     verified = (metrics.mismatch + tied_agreeing) / n <= max_mismatch and metrics.events["acc_overflow"] == 0
     return TuneResult(
-        plan, start, float(max_mismatch), cost, tuple(steps), tuple(records), metrics, hw, verified, local_min
+        plan, start, float(max_mismatch), cost, tuple(steps), tuple(records), metrics, hw, verified, local_min,
+        answer, None if cur.refinement is None else dict(cur.refinement),
     )

@@ -60,8 +60,8 @@ def test_refused_plans_are_recorded_and_left_off_the_front(codes):
 def test_evaluate_plans_and_bad_input(net, codes, grid, plan):
     (r,) = evaluate_plans(net, codes, [plan], executor=SerialExecutor())
     assert r.plan == plan and r.mismatch == fw.emulate(net, plan, codes).mismatch
-    with pytest.raises(ValueError, match=r"^cost must be one of total_bits, .*, not 'luts'$"):
-        sweep(net, codes, grid, cost="luts")
+    with pytest.raises(ValueError, match=r"^cost must be one of total_bits, .*, not 'gates'$"):
+        sweep(net, codes, grid, cost="gates")
     with pytest.raises(ValueError, match=r"^grid values of table_bits must be between 1 and 20, not 21$"):
         sweep(net, codes, {"table_bits": [21]})
     msg = r"^executor must be a concurrent\.futures\.Executor or a dask Client, not int$"
