@@ -313,7 +313,7 @@ class SearchPanel(w.VBox):
             self._records = list(result.records)
         self.tune_result = result
         try:
-            self.path = tune_path(result)
+            self.path = tune_path(self.network, result)
         except ValueError as exc:
             self.path = []
             self.error = f"path: {exc}"

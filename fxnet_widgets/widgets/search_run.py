@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from ..core.analysis import SweepRecord, TuneResult
+from ..core.analysis.search.tuning import move
 from ..core.formats import q_notation
 from ..core.labels import LabelledPixels
 from ..core.network import Network
@@ -131,34 +132,7 @@ def dominance_front(records: Iterable[SweepRecord], x: Callable[[SweepRecord], f
     return front
 
 
-def _apply_move(plan: Plan, move: str, layer: int, d: int) -> Plan:
-    """One accepted move of ``tune`` as its documentation defines it (each width down by ``d`` bits)."""
-    lp = plan.layers[layer]
-    v: dict[str, Any]
-    if move == "weight_lsb":
-        v = {"weight_bits": lp.weight_bits - d, "weight_frac": lp.weight_frac - d}
-    elif move == "weight_msb":
-        v = {"weight_bits": lp.weight_bits - d}
-    elif move == "acc_msb":
-        v = {"acc_bits": lp.acc_bits - d}
-    elif move == "table_lsb":
-        assert lp.table_bits is not None and lp.table_frac is not None
-        v = {"table_bits": lp.table_bits - d, "table_frac": lp.table_frac - d}
-    elif move == "table_msb":
-        assert lp.table_bits is not None
-        v = {"table_bits": lp.table_bits - d}
-    elif move == "out_lsb":
-        v = {"out_bits": lp.out_bits - d}
-        if lp.out_frac is not None:
-            v["out_frac"] = lp.out_frac - d
-    elif move == "out_msb":
-        v = {"out_bits": lp.out_bits - d}
-    else:
-        raise ValueError(f"move must be one of tune's moves, not {move!r}")
-    return plan.replace(layer=layer, **v)
-
-
-def tune_path(result: TuneResult) -> list[SweepRecord]:
+def tune_path(network: Network, result: TuneResult) -> list[SweepRecord]:
     """The records of the start plan and of each accepted move, in order (the path drawn on the scatter).
 
     The plans are rebuilt from the moves; a path that does not end at the
@@ -168,7 +142,10 @@ def tune_path(result: TuneResult) -> list[SweepRecord]:
     plan = result.start
     path = [by_plan[plan]] if plan in by_plan else []
     for s in result.steps:
-        plan = _apply_move(plan, s.move, s.layer, s.bits)
+        step = move(network, plan, s.layer, s.move, s.bits)  # tune's own move, rebuilt
+        if step is None:
+            raise ValueError(f"tune path must consist of possible moves, not {s.move!r} on layer {s.layer + 1}")
+        plan = step.plan
         if plan not in by_plan:
             raise ValueError(f"tune path must consist of evaluated plans, not {plan!r}")
         path.append(by_plan[plan])
