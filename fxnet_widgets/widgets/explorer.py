@@ -106,7 +106,18 @@ class Explorer(w.VBox):
         # then logs negative <rect> sizes), and a report embeds the widgets with no kernel to redraw them
         self.sections: dict[str, w.VBox] = {title: _section(title, body) for title, body in parts}
         top = _wrap_row([self.controls, self.metrics])
-        super().__init__([top, self.status, *self.sections.values()])
+        #: how the starting plan was chosen (per layer: the range its output format holds), if it was
+        self.start_note = (
+            w.HTML(
+                "<details><summary>starting plan: how each layer's formats were chosen</summary><ul>"
+                + "".join(f"<li>{html.escape(n)}</li>" for n in s.start_notes)
+                + "</ul></details>"
+            )
+            if s.start_notes
+            else None
+        )
+        head = [top, self.status] + ([self.start_note] if self.start_note is not None else [])
+        super().__init__([*head, *self.sections.values()])
         self.add_class("fxnet-explorer")
 
     @classmethod

@@ -49,7 +49,7 @@ from ..core.analysis.cost import hardware_cost
 from ..core.kernel import build_integer_network, emulate
 from ..core.network import Network
 from ..core.plan import Plan
-from ..core.starting import suggest_plan
+from ..core.starting import starting_plan, suggest_plan
 from ..render.raster import MAX_PREVIEW_WIDTH
 from . import parts
 from .binning import BinCounter, neuron_results
@@ -163,8 +163,13 @@ class Session(t.HasTraits):
         self.idle_since = time.monotonic()
         #: how long a browser change waits for newer ones before it is computed
         self.coalesce_seconds = coalesce_seconds
+        #: how the starting plan was chosen, one note per layer (empty when a plan was given)
+        self.start_notes: tuple[str, ...] = ()
+        if plan is None:
+            start = starting_plan(network, self._start_data())
+            plan, self.start_notes = start.plan, tuple(start.notes)
         super().__init__(
-            plan=(plan if plan is not None else default_plan(network, self._start_data())).check(network),
+            plan=plan.check(network),
             slice_red=mid, slice_green=mid, slice_blue=mid,
         )  # fmt: skip
         # first observer of the plan: every later one (the controls) sees the new version

@@ -218,3 +218,22 @@ def test_relu_and_three_class_network_in_the_explorer(belt_image):
     assert ex.boundary.slices[0].cs.max == len(slice_palette(3)) - 1
     for hp in ex.histograms.plots:
         assert int(hp.neuron.counts.sum()) == belt_image.shape[0] * belt_image.shape[1]
+
+
+def test_starting_plan_notes_say_how_each_format_was_chosen():
+    """Without a plan the session starts on core.starting's plan for its data and keeps its notes."""
+    import numpy as np
+
+    import fxnet_widgets as fw
+    from fxnet_widgets.core.starting import starting_plan
+
+    net = fw.Network.from_layers([([[1.0, 0.0, 0.0]], [0.0], "relu"), ([[1.0], [-1.0]], [0.0, 0.0], "identity")],
+                                 classes=["a", "b"])  # fmt: skip
+    data = np.array([[0, 0, 0], [60, 9, 9]], dtype=np.uint8)
+    explorer = fw.Explorer(net, samples=data)
+    expected = starting_plan(net, [data])
+    assert explorer.plan == expected.plan and explorer.session.start_notes == expected.notes
+    # the note names the kept range (observed plus the margin) and the layer it belongs to
+    assert "layer 1 (relu)" in explorer.start_note.value and "observed range" in explorer.start_note.value
+    given = fw.Explorer(net, samples=data, plan=expected.plan)
+    assert given.session.start_notes == () and given.start_note is None
