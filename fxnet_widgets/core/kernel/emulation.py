@@ -11,7 +11,7 @@ from ..network import Network
 from ..plan import Plan
 from .build import build_integer_network
 from .caches import FLOAT_CACHE, LAYER_CACHE, SUM_CACHE
-from .evaluate import LayerOut, Prepared, frozen, layer_sums, prepare, run_layer
+from .evaluate import Bounds, LayerOut, Prepared, frozen, prepare, run_layer, sums_and_bounds
 from .layers import DATA_EVENTS, EVENT_NAMES, IntegerLayer, IntegerNetwork
 
 __all__ = ["Emulation", "emulate"]
@@ -225,6 +225,11 @@ class Emulation:
         return f"<Emulation {self.n} samples, {self.mismatch} differ from float, events {self.event_totals()}>"
 
 
+def _first_sums(layer: IntegerLayer, prep: Prepared, bits: int) -> tuple[list[np.ndarray], Bounds]:
+    sums, bounds = sums_and_bounds(layer, prep, None, bits)
+    return frozen(sums), bounds
+
+
 def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
     """Run the bit-exact integer network on unsigned input codes.
 
@@ -233,7 +238,9 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
     network, plan
         The float network and the fixed-point plan (checked against each other).
     codes
-        N x n_in unsigned integer codes, or an H x W x n_in image (e.g. uint8 RGB).
+        N x n_in unsigned integer codes, or an H x W x n_in image (e.g. uint8 RGB), or
+        their :func:`.evaluate.prepare` result (a search evaluating many plans on the same
+        data prepares it once, so the codes are not hashed again for every plan).
 
     Returns
     -------
@@ -241,7 +248,13 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
         Image input gives image-shaped arrays.
     """
     intnet = build_integer_network(network, plan)
-    prep = prepare(codes, network.input_bits, network.n_in)
+    if isinstance(codes, Prepared):
+        prep = codes
+        if prep.bits != network.input_bits or prep.flat.shape[1] != network.n_in:
+            raise ValueError(f"codes must be prepared for {network.input_bits}-bit inputs x {network.n_in}, "
+                             f"not {prep.bits}-bit x {prep.flat.shape[1]}")  # fmt: skip
+    else:
+        prep = prepare(codes, network.input_bits, network.n_in)
     outs: list[LayerOut] = []
     prev: LayerOut | None = None
     for li, layer in enumerate(intnet.layers):
@@ -251,10 +264,10 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
             if prev is None:
                 skey = (prep.key, network.input_bits, layer.q_w.shape, layer.q_w.tobytes(), layer.q_b.tobytes(),
                         layer.sum_min, layer.sum_max)  # fmt: skip
-                sums = SUM_CACHE.get(skey, lambda: frozen(layer_sums(layer, prep, None, network.input_bits)))
+                sums, bounds = SUM_CACHE.get(skey, lambda: _first_sums(layer, prep, network.input_bits))
             else:
-                sums = layer_sums(layer, None, prev.codes, network.input_bits)
-            return run_layer(layer, sums)
+                sums, bounds = sums_and_bounds(layer, None, prev.codes, network.input_bits)
+            return run_layer(layer, sums, bounds)
 
         prev = LAYER_CACHE.get(key, make)
         outs.append(prev)

@@ -19,11 +19,12 @@ import numpy as np
 
 from ..formats import signed_range
 from ..network import as_codes
+from . import _compiled
 from .accumulate import post_accumulate, smallest_int
 from .caches import INPUT_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
 
-__all__ = ["Prepared", "prepare", "layer_sums", "LayerOut", "run_layer", "frozen"]
+__all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -35,6 +36,7 @@ class Prepared:
     pairs: tuple[tuple[int, int, np.ndarray], ...]  # (i, j, index = u_i << bits | u_j)
     singles: tuple[int, ...]
     n: int
+    bits: int = 0  # the input width the codes were checked against
 
 
 def _input_key(arr: np.ndarray, bits: int, n_in: int) -> str:
@@ -70,7 +72,7 @@ def prepare(codes: Any, bits: int, n_in: int) -> Prepared:
                 singles.append(n_in - 1)
         if flat.base is None:
             flat.setflags(write=False)
-        return Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]))
+        return Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]), bits)
 
     return INPUT_CACHE.get(key, make)
 
@@ -138,6 +140,47 @@ def layer_sums(
     return sums
 
 
+Bounds = tuple[np.ndarray, np.ndarray]  # per neuron, the min and max of the offset sums on the data
+
+
+def _dense_compiled(layer: IntegerLayer, prev_codes: np.ndarray) -> tuple[list[np.ndarray], Bounds] | None:
+    """Layer sums from the previous layer's codes in one compiled pass (None: numpy is used)."""
+    lo_in, hi_in = layer.inputs.lo, layer.inputs.hi
+    span_in = hi_in - lo_in + 1
+    if layer.n_out * layer.n_in * span_in > (1 << 22) or prev_codes.shape[0] != layer.n_in:
+        return None
+    u = np.arange(lo_in, hi_in + 1, dtype=np.int64)
+    tabs = layer.q_w[:, :, None] * u[None, None, :]  # exact: the int64 proof bounds every product
+    base = layer.q_b - np.array(layer.sum_min, dtype=np.int64)
+    tabs[:, 0, :] += base[:, None]
+    width = max(hi - lo for lo, hi in zip(layer.sum_min, layer.sum_max))
+    n = prev_codes.shape[1]
+    out: np.ndarray = np.empty((layer.n_out, n), dtype=_offset_dtype(width))
+    mins = np.empty(layer.n_out, dtype=np.int64)
+    maxs = np.empty(layer.n_out, dtype=np.int64)
+    _compiled.kernels().dense_sums(np.ascontiguousarray(prev_codes), lo_in, tabs, out, mins, maxs)
+    return list(out), (mins, maxs)
+
+
+def sums_and_bounds(
+    layer: IntegerLayer, prep: Prepared | None, prev_codes: np.ndarray | None, bits: int
+) -> tuple[list[np.ndarray], Bounds]:
+    """:func:`layer_sums` and, per neuron, their min and max on the data (compiled where it runs)."""
+    n = prep.n if prev_codes is None and prep is not None else (prev_codes.shape[1] if prev_codes is not None else 0)
+    if prev_codes is not None and n and _compiled.use_compiled(n):
+        done = _dense_compiled(layer, prev_codes)
+        if done is not None:
+            return done
+    sums = layer_sums(layer, prep, prev_codes, bits)
+    mins = np.zeros(layer.n_out, dtype=np.int64)
+    maxs = np.zeros(layer.n_out, dtype=np.int64)
+    if n:
+        kern = _compiled.kernels() if _compiled.use_compiled(n) else None
+        for j, sp in enumerate(sums):
+            mins[j], maxs[j] = kern.minmax(sp) if kern is not None else (int(sp.min()), int(sp.max()))
+    return sums, (mins, maxs)
+
+
 def frozen(arrays: list[np.ndarray]) -> list[np.ndarray]:
     for a in arrays:
         a.setflags(write=False)
@@ -182,8 +225,10 @@ class LayerOut:
         return self._acc
 
 
-def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
+def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
+    """Steps 4-7 on the offset sums ``shifted``; ``bounds``: their per-neuron min and max, when known."""
     n = shifted[0].shape[0] if shifted else 0
+    kern = _compiled.kernels() if _compiled.use_compiled(n) else None
     code_dt = smallest_int(layer.code_min, layer.code_max)
     if layer.code_min >= 0 and layer.code_max <= 255:
         code_dt = np.uint8
@@ -195,7 +240,10 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
     for j, sp in enumerate(shifted):
         lo = layer.sum_min[j]
         # the look-up table covers only the sums seen on the data: [lo + m0, lo + m1]
-        m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
+        if bounds is not None and n:
+            m0, m1 = int(bounds[0][j]), int(bounds[1][j])
+        else:
+            m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
@@ -209,17 +257,26 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
                 full[m0:] = v
                 return full
 
-            np.take(lut(out["codes"], code_dt), sp, out=codes[j])
             acc_lut = out["acc"]
             changed = out["acc_overflow"] is not None
             acc_direct.append((lut(np.asarray(acc_lut)), sp) if changed else None)
             flags = [out[k] for k in DATA_EVENTS]
+            ev = None
             if any(f is not None and f.any() for f in flags):
                 ev = np.zeros(span, dtype=np.uint8)
                 for bit, f in enumerate(flags):
                     if f is not None:
                         ev |= f.astype(np.uint8) << np.uint8(bit)
-                hist = np.bincount(lut(ev).take(sp), minlength=8)
+            hist: np.ndarray | None = None
+            if kern is not None:  # one fused pass: codes and the event histogram
+                hist = np.zeros(8, dtype=np.int64)
+                ev_lut = ev if ev is not None else np.zeros(0, dtype=np.uint8)
+                kern.lut_apply(sp, m0, np.ascontiguousarray(out["codes"], dtype=code_dt), ev_lut, codes[j], hist)
+            else:
+                np.take(lut(out["codes"], code_dt), sp, out=codes[j])
+                hist = np.bincount(lut(ev).take(sp), minlength=8) if ev is not None else None
+            if ev is not None:
+                assert hist is not None
                 for bit, name in enumerate(DATA_EVENTS):
                     counts[name][j] = int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
         else:

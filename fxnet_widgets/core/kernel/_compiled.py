@@ -1,0 +1,101 @@
+"""Fused per-sample loops of the kernel (numba), compiled on first use, cached on disk.
+
+Two loops, both pure gathers and integer additions (no rounding, no overflow
+mode: those stay in :mod:`..formats`, applied by :func:`.accumulate.post_accumulate`
+to the look-up domain):
+
+``dense_sums``  every neuron's exact sum minus ``sum_min`` from product tables
+                gathered by input code, and each neuron's observed min and max,
+                in one pass over the samples (numpy: two passes per input and neuron)
+``lut_apply``   a neuron's codes read from its steps 4-7 look-up table and the
+                histogram of its event bits, in one pass (numpy: three)
+
+``FXNET_KERNEL=numpy`` (read at every call) selects the numpy reference path;
+the tests run both on the same cases and require identical results.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+from typing import Any
+
+import numpy as np
+
+__all__ = ["MIN_SAMPLES", "kernels", "use_compiled"]
+
+#: below this many samples the numpy path is used (a call's fixed cost dominates)
+MIN_SAMPLES = 2048
+
+_LOCK = threading.Lock()
+_KERNELS: Any = None
+
+
+def use_compiled(n: int) -> bool:
+    """Whether the compiled loops run for ``n`` samples (not with ``FXNET_KERNEL=numpy``)."""
+    return n >= MIN_SAMPLES and os.environ.get("FXNET_KERNEL", "").strip().lower() != "numpy"
+
+
+class _Kernels:
+    def __init__(self) -> None:
+        import numba
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def dense_sums(x: np.ndarray, off: int, tabs: np.ndarray, out: np.ndarray, mins: np.ndarray,
+                       maxs: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # x (n_in, N) codes; tabs (n_out, n_in, span) int64 with the offset bias in input 0
+            n_out, n_in, n = tabs.shape[0], tabs.shape[1], x.shape[1]
+            for j in range(n_out):  # neuron by neuron: contiguous writes, the min/max held in registers
+                row = out[j]
+                t0 = tabs[j, 0]
+                for i in range(n):
+                    row[i] = t0[np.int64(x[0, i]) - off]
+                for r in range(1, n_in):
+                    t = tabs[j, r]
+                    for i in range(n):
+                        row[i] += t[np.int64(x[r, i]) - off]
+                lo = np.int64(row[0]) if n else np.int64(0)
+                hi = lo
+                for i in range(n):
+                    v = np.int64(row[i])
+                    lo = min(lo, v)
+                    hi = max(hi, v)
+                mins[j] = lo
+                maxs[j] = hi
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def lut_apply(sp: np.ndarray, m0: int, codes_lut: np.ndarray, ev_lut: np.ndarray, out: np.ndarray,
+                      hist: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            if ev_lut.shape[0]:
+                for i in range(sp.shape[0]):
+                    a = np.int64(sp[i]) - m0
+                    out[i] = codes_lut[a]
+                    hist[ev_lut[a]] += 1
+            else:
+                for i in range(sp.shape[0]):
+                    out[i] = codes_lut[np.int64(sp[i]) - m0]
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def minmax(sp: np.ndarray) -> tuple[int, int]:  # pragma: no cover
+            lo = np.int64(sp[0])
+            hi = lo
+            for i in range(1, sp.shape[0]):
+                v = np.int64(sp[i])
+                if v < lo:
+                    lo = v
+                elif v > hi:
+                    hi = v
+            return lo, hi
+
+        self.dense_sums = dense_sums
+        self.lut_apply = lut_apply
+        self.minmax = minmax
+
+
+def kernels() -> _Kernels:
+    """The compiled loops (imported and compiled on first use)."""
+    global _KERNELS
+    with _LOCK:
+        if _KERNELS is None:
+            _KERNELS = _Kernels()
+        return _KERNELS
