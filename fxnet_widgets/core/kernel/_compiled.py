@@ -9,6 +9,10 @@ to the look-up domain):
                 in one pass over the samples (numpy: two passes per input and neuron)
 ``lut_apply``   a neuron's codes read from its steps 4-7 look-up table and the
                 histogram of its event bits, in one pass (numpy: three)
+``coarse_apply`` the same from a table over buckets of ``2**b`` sums, for a neuron whose steps
+                4-7 are monotone in the sum (no accumulator overflow on the data): a bucket
+                whose two ends give the same code and events gives them throughout; the
+                samples of the other buckets are listed and computed exactly
 
 ``FXNET_KERNEL=numpy`` (read at every call) selects the numpy reference path;
 the tests run both on the same cases and require identical results.
@@ -70,10 +74,30 @@ class _Kernels:
                 for i in range(sp.shape[0]):
                     a = np.int64(sp[i]) - m0
                     out[i] = codes_lut[a]
-                    hist[ev_lut[a]] += 1
+                    e = ev_lut[a]
+                    if e:  # bin 0 (no event) is never read
+                        hist[e] += 1
             else:
                 for i in range(sp.shape[0]):
                     out[i] = codes_lut[np.int64(sp[i]) - m0]
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def coarse_apply(sp: np.ndarray, m0: int, b: int, codes_q: np.ndarray, ev_q: np.ndarray, out: np.ndarray,
+                         hist: np.ndarray, idx: np.ndarray) -> int:  # fmt: skip # pragma: no cover
+            # bucket q = (sp - m0) >> b; ev_q: the bucket's event bits, bit 7 set where the bucket
+            # holds a step (its samples are listed in idx, their number returned, computed by the caller)
+            nm = 0
+            for i in range(sp.shape[0]):
+                q = (np.int64(sp[i]) - m0) >> b
+                out[i] = codes_q[q]
+                e = ev_q[q]
+                if e:  # rare: no histogram store (and its store-to-load stall) on a quiet sample
+                    if e & 128:
+                        idx[nm] = i
+                        nm += 1
+                    else:
+                        hist[e] += 1
+            return nm
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def minmax(sp: np.ndarray) -> tuple[int, int]:  # pragma: no cover
@@ -89,6 +113,7 @@ class _Kernels:
 
         self.dense_sums = dense_sums
         self.lut_apply = lut_apply
+        self.coarse_apply = coarse_apply
         self.minmax = minmax
 
 

@@ -225,6 +225,60 @@ class LayerOut:
         return self._acc
 
 
+_COARSE_MIN_SPAN = 1 << 13  # below this many distinct sums the exact look-up table is cheap enough
+
+
+def _event_bits(out: dict[str, Any], size: int) -> np.ndarray:
+    ev = np.zeros(size, dtype=np.uint8)
+    for bit, name in enumerate(DATA_EVENTS):
+        if out[name] is not None:
+            ev |= out[name].astype(np.uint8) << np.uint8(bit)
+    return ev
+
+
+def _add_hist(counts: dict[str, np.ndarray], j: int, hist: np.ndarray) -> None:
+    for bit, name in enumerate(DATA_EVENTS):
+        counts[name][j] += int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
+
+
+def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1: int, row: np.ndarray,
+            counts: dict[str, np.ndarray]) -> bool:  # fmt: skip
+    """Steps 4-7 of neuron ``j`` through bucket tables (compiled; False: not applicable, nothing done).
+
+    Applies when no sum on the data can overflow the accumulator: then the code, ``table_low``
+    and ``table_high`` are monotone in the sum (rounding, clamp and the table's entries are), so a
+    bucket whose first and last sum agree on all three agrees throughout.
+    """
+    lo = layer.sum_min[j]
+    alo, ahi = signed_range(layer.plan.acc_bits)
+    table = layer.table
+    if lo + m0 < alo or lo + m1 > ahi or (table is not None and not bool(np.all(table[1:] >= table[:-1]))):
+        return False
+    n = sp.shape[0]
+    b = ((m1 - m0 + 1) // min(max(n // 8, 1024), 1 << 16)).bit_length()  # bucket width 2**b
+    if b == 0:
+        return False
+    nb = ((m1 - m0) >> b) + 1
+    starts = m0 + (np.arange(nb, dtype=np.int64) << np.int64(b))
+    ends = np.minimum(starts + ((1 << b) - 1), m1)
+    out = post_accumulate(layer, np.concatenate((starts, ends)) + np.int64(lo), lo + m0, lo + m1)
+    c, ev = out["codes"], _event_bits(out, 2 * nb)
+    ev_q = ev[:nb].copy()
+    ev_q[(c[:nb] != c[nb:]) | (ev[:nb] != ev[nb:])] = 128  # a step inside: its samples are computed exactly
+    hist = np.zeros(8, dtype=np.int64)
+    idx = np.empty(n, dtype=np.int64)
+    nm = kern.coarse_apply(sp, m0, b, np.ascontiguousarray(c[:nb], dtype=row.dtype), ev_q, row, hist, idx)
+    _add_hist(counts, j, hist)
+    if nm:  # the samples of buckets with a step inside: exactly, per sample
+        sel = idx[:nm]
+        rest = post_accumulate(layer, sp[sel].astype(np.int64) + np.int64(lo), lo + m0, lo + m1)
+        row[sel] = rest["codes"]
+        for name in DATA_EVENTS:
+            if rest[name] is not None:
+                counts[name][j] += int(np.count_nonzero(rest[name]))
+    return True
+
+
 def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
     """Steps 4-7 on the offset sums ``shifted``; ``bounds``: their per-neuron min and max, when known."""
     n = shifted[0].shape[0] if shifted else 0
@@ -247,6 +301,9 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
+        if kern is not None and span >= max(_COARSE_MIN_SPAN, n // 2) and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
+            acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
+            continue
         if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
             dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
             out = post_accumulate(layer, dom, lo + m0, lo + m1)
