@@ -113,10 +113,9 @@ def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) ->
         else:
             os.environ["FXNET_KERNEL"] = saved
     ref, new = n_plans / best["numpy"][1], n_plans / best["compiled"][1]
-    print(f"  numpy reference kernel (FXNET_KERNEL=numpy): {ref:7.1f} plans/s of CPU ({n_plans / best['numpy'][0]:.1f}"
-          " plans/s wall)")  # fmt: skip
-    print(f"  compiled kernel (numba):                     {new:7.1f} plans/s of CPU ({n_plans / best['compiled'][0]:.1f}"
-          " plans/s wall)")  # fmt: skip
+    wall_ref, wall_new = n_plans / best["numpy"][0], n_plans / best["compiled"][0]
+    print(f"  numpy reference kernel (FXNET_KERNEL=numpy): {ref:7.1f} plans/s of CPU ({wall_ref:.1f} plans/s wall)")
+    print(f"  compiled kernel (numba):                     {new:7.1f} plans/s of CPU ({wall_new:.1f} plans/s wall)")
     print(f"  speed-up, CPU time:          {new / ref:.2f}x (target >= 3x)")
     with tempfile.TemporaryDirectory() as tmp:
         cold = compile_seconds(tmp)
