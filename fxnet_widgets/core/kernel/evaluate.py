@@ -301,7 +301,8 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
-        if kern is not None and span >= max(_COARSE_MIN_SPAN, n // 2) and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
+        wide = span >= max(_COARSE_MIN_SPAN, n // 2)  # an exact look-up table would cost about a pass per sample
+        if kern is not None and wide and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
             acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
             continue
         if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
