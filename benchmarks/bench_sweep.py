@@ -79,7 +79,7 @@ x = np.zeros((3, 4), np.uint8); tabs = np.zeros((1, 3, 256), np.int64); o = np.e
 k.dense_sums(x, 0, tabs, o, np.empty(1, np.int64), np.empty(1, np.int64))
 sp = np.zeros(4, np.int32); c = np.zeros(4, np.uint8); e = np.zeros(4, np.uint8); h = np.zeros(8, np.int64)
 k.lut_apply(sp, 0, c, e, c, h)
-k.coarse_apply(sp, 0, 1, c, e, c, h, np.empty(4, np.int64))
+k.coarse_apply(sp, 0, 0, 1, c, e, c, h, np.empty(4, np.int64))
 k.minmax(sp)
 print(time.perf_counter() - t)
 """

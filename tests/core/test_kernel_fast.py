@@ -155,3 +155,19 @@ def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round)
     slow = fxref.run(net.to_dict(), plan.to_dict(), codes[:200].tolist())
     for li, L in enumerate(slow["layers"]):
         assert fast["codes"][li][:200] == L["codes"]
+
+
+def test_bucket_path_resumes_when_its_step_list_is_full(monkeypatch):
+    # a step list of 7 samples: the loop must stop and resume many times and still match numpy
+    from fxnet_widgets.core.kernel import evaluate as kev
+
+    monkeypatch.setattr(kev, "_MIXED_CHUNK", 7)
+    rng = np.random.default_rng(4)
+    net = fw.Network.from_layers([(rng.normal(0, 4, (2, 3)), rng.normal(0, 1, 2), "sigmoid")])
+    codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
+    plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=30, table_bits=8, table_frac=5, out_bits=8)
+    calls = []
+    real = _compiled.kernels().coarse_apply
+    monkeypatch.setattr(_compiled.kernels(), "coarse_apply", lambda *a: calls.append(1) or real(*a))
+    assert _run(net, plan, codes, "compiled") == _run(net, plan, codes, "numpy")
+    assert len(calls) > 2 * len(net.layers[0].bias), "the loop must have resumed"

@@ -82,12 +82,15 @@ class _Kernels:
                     out[i] = codes_lut[np.int64(sp[i]) - m0]
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
-        def coarse_apply(sp: np.ndarray, m0: int, b: int, codes_q: np.ndarray, ev_q: np.ndarray, out: np.ndarray,
-                         hist: np.ndarray, idx: np.ndarray) -> int:  # fmt: skip # pragma: no cover
+        def coarse_apply(sp: np.ndarray, start: int, m0: int, b: int, codes_q: np.ndarray, ev_q: np.ndarray,
+                         out: np.ndarray, hist: np.ndarray,
+                         idx: np.ndarray) -> tuple[int, int]:  # fmt: skip # pragma: no cover
             # bucket q = (sp - m0) >> b; ev_q: the bucket's event bits, bit 7 set where the bucket
-            # holds a step (its samples are listed in idx, their number returned, computed by the caller)
+            # holds a step: its samples are listed in idx for the caller to compute; stops when idx is
+            # full and returns (where to resume, how many listed)
             nm = 0
-            for i in range(sp.shape[0]):
+            cap = idx.shape[0]
+            for i in range(start, sp.shape[0]):
                 q = (np.int64(sp[i]) - m0) >> b
                 out[i] = codes_q[q]
                 e = ev_q[q]
@@ -95,9 +98,11 @@ class _Kernels:
                     if e & 128:
                         idx[nm] = i
                         nm += 1
+                        if nm == cap:
+                            return i + 1, nm
                     else:
                         hist[e] += 1
-            return nm
+            return sp.shape[0], nm
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def minmax(sp: np.ndarray) -> tuple[int, int]:  # pragma: no cover

@@ -226,6 +226,7 @@ class LayerOut:
 
 
 _COARSE_MIN_SPAN = 1 << 13  # below this many distinct sums the exact look-up table is cheap enough
+_MIXED_CHUNK = 1 << 16  # samples of step buckets computed per call
 
 
 def _event_bits(out: dict[str, Any], size: int) -> np.ndarray:
@@ -266,16 +267,19 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
     ev_q = ev[:nb].copy()
     ev_q[(c[:nb] != c[nb:]) | (ev[:nb] != ev[nb:])] = 128  # a step inside: its samples are computed exactly
     hist = np.zeros(8, dtype=np.int64)
-    idx = np.empty(n, dtype=np.int64)
-    nm = kern.coarse_apply(sp, m0, b, np.ascontiguousarray(c[:nb], dtype=row.dtype), ev_q, row, hist, idx)
+    idx = np.empty(min(n, _MIXED_CHUNK), dtype=np.int64)  # bounded: no per-sample index array on a large frame
+    codes_q = np.ascontiguousarray(c[:nb], dtype=row.dtype)
+    start = 0
+    while start < n:
+        start, nm = kern.coarse_apply(sp, start, m0, b, codes_q, ev_q, row, hist, idx)
+        if nm:  # the samples of buckets with a step inside: exactly, per sample
+            sel = idx[:nm]
+            rest = post_accumulate(layer, sp[sel].astype(np.int64) + np.int64(lo), lo + m0, lo + m1)
+            row[sel] = rest["codes"]
+            for name in DATA_EVENTS:
+                if rest[name] is not None:
+                    counts[name][j] += int(np.count_nonzero(rest[name]))
     _add_hist(counts, j, hist)
-    if nm:  # the samples of buckets with a step inside: exactly, per sample
-        sel = idx[:nm]
-        rest = post_accumulate(layer, sp[sel].astype(np.int64) + np.int64(lo), lo + m0, lo + m1)
-        row[sel] = rest["codes"]
-        for name in DATA_EVENTS:
-            if rest[name] is not None:
-                counts[name][j] += int(np.count_nonzero(rest[name]))
     return True
 
 
