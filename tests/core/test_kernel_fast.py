@@ -65,7 +65,7 @@ def _run(net, plan, codes, path):
         if path == "numpy":
             m.setenv("FXNET_KERNEL", "numpy")
         else:
-            m.delenv("FXNET_KERNEL", raising=False)
+            m.setenv("FXNET_KERNEL", "numba")
             m.setattr(_compiled, "MIN_SAMPLES", 0)
         r = fw.emulate(net, plan, codes)
     out = {
@@ -99,8 +99,13 @@ def test_numpy_switch_is_read_at_every_call(monkeypatch):
     monkeypatch.setattr(_compiled, "MIN_SAMPLES", 0)
     monkeypatch.setenv("FXNET_KERNEL", "numpy")
     assert not _compiled.use_compiled(10**6)
-    monkeypatch.setenv("FXNET_KERNEL", "")
+    monkeypatch.setenv("FXNET_KERNEL", "numba")
     assert _compiled.use_compiled(1)
+    monkeypatch.setenv("FXNET_KERNEL", "")  # auto: once loaded
+    monkeypatch.setattr(_compiled, "_KERNELS", None)
+    assert not _compiled.use_compiled(10**6)
+    _compiled.kernels()
+    assert _compiled.use_compiled(10**6)
 
 
 def test_event_counts_on_a_sweep_like_plan_match_the_numpy_path():

@@ -14,8 +14,11 @@ to the look-up domain):
                 whose two ends give the same code and events gives them throughout; the
                 samples of the other buckets are listed and computed exactly
 
-``FXNET_KERNEL=numpy`` (read at every call) selects the numpy reference path;
-the tests run both on the same cases and require identical results.
+``FXNET_KERNEL`` (read at every call) chooses: ``numpy`` the numpy reference path, ``numba``
+the compiled loops; unset (auto), the loops run once they are loaded (:func:`kernels`), which
+a search does in each worker, since importing numba costs a fixed ~0.1 GB of memory and
+~0.5 s that a single emulation of one frame does not win back. The tests run both paths on
+the same cases and require identical results.
 """
 
 from __future__ import annotations
@@ -26,7 +29,7 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["MIN_SAMPLES", "kernels", "use_compiled"]
+__all__ = ["MIN_SAMPLES", "kernels", "load_for", "use_compiled"]
 
 #: below this many samples the numpy path is used (a call's fixed cost dominates)
 MIN_SAMPLES = 2048
@@ -36,8 +39,19 @@ _KERNELS: Any = None
 
 
 def use_compiled(n: int) -> bool:
-    """Whether the compiled loops run for ``n`` samples (not with ``FXNET_KERNEL=numpy``)."""
-    return n >= MIN_SAMPLES and os.environ.get("FXNET_KERNEL", "").strip().lower() != "numpy"
+    """Whether the compiled loops run for ``n`` samples (see ``FXNET_KERNEL`` above)."""
+    if n < MIN_SAMPLES:
+        return False
+    mode = os.environ.get("FXNET_KERNEL", "").strip().lower()
+    if mode == "numpy":
+        return False
+    return mode == "numba" or _KERNELS is not None
+
+
+def load_for(n: int) -> None:
+    """Load the loops for work on ``n`` samples, unless ``FXNET_KERNEL=numpy`` (a search calls this)."""
+    if n >= MIN_SAMPLES and os.environ.get("FXNET_KERNEL", "").strip().lower() != "numpy":
+        kernels()
 
 
 class _Kernels:

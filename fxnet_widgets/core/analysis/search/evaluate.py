@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from ...kernel import emulate
+from ...kernel import _compiled, emulate
 from ...kernel.evaluate import Prepared, prepare
 from ...network import Network, as_codes
 from ...plan import Plan
@@ -111,6 +111,7 @@ def _run_chunk(
 ) -> list[SweepRecord]:  # fmt: skip
     """Evaluate one chunk of plans (runs in a worker)."""
     net = _network_from(net_doc)
+    _compiled.load_for(codes.shape[0])  # many plans on the same data: the compiled loops pay for their import
     prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
     return [_evaluate_one(net, prep, labels, t, cost_key, options) for t in tasks]
 
