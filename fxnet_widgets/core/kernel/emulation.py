@@ -17,6 +17,13 @@ from .layers import DATA_EVENTS, EVENT_NAMES, IntegerLayer, IntegerNetwork
 __all__ = ["Emulation", "emulate"]
 
 
+def _class_dtype(n_classes: int) -> type:
+    for dt in (np.uint8, np.uint16, np.uint32):
+        if n_classes - 1 <= np.iinfo(dt).max:
+            return dt
+    return np.uint64
+
+
 class _FloatRef:
     """The float reference of one (network, input): outputs, and decisions made once on first use."""
 
@@ -40,7 +47,8 @@ class Emulation:
     Attributes
     ----------
     out_codes : (N, n_out) or (H, W, n_out) output codes of the last layer
-    decisions : (N,) or (H, W) int64 decisions
+    decisions : (N,) or (H, W) decisions, in the narrowest unsigned integer type that holds every
+        class index (uint8 up to 256 classes; the ``.npz`` file holds them as int64)
     acc : list, per layer, of s_A arrays (N x n_out_l or H x W x n_out_l)
     codes : list, per layer, of output codes
     events : list, per layer, of ``{event name: (n_out_l,) int64 counts}``
@@ -60,11 +68,13 @@ class Emulation:
         self.events = [o.events for o in outs]
         self.safe_acc_bits = [L.safe_acc_bits for L in intnet.layers]
         last = outs[-1].codes
+        # the narrowest unsigned type that holds every class index (uint8 up to 256 classes):
+        # on a 4K frame int64 decisions alone are 2.7x the frame's bytes; the .npz file keeps int64
         if last.shape[0] == 1:
             assert intnet.threshold_code is not None
-            dec = (last[0] >= intnet.threshold_code).astype(np.int64)
+            dec = (last[0] >= intnet.threshold_code).view(np.uint8)
         else:
-            dec = np.argmax(last, axis=0).astype(np.int64)
+            dec = np.argmax(last, axis=0).astype(_class_dtype(last.shape[0]))
         dec.setflags(write=False)
         self._decisions = dec
 
