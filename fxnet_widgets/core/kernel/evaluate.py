@@ -84,6 +84,31 @@ _LUT_MAX = 1 << 21
 _LUT_FRACTION = 1.0  # a table over more sums than samples costs more than it saves
 
 
+_CHUNK = 1 << 20  # samples per gather: numpy's take copies a small-dtype index to intp (8 bytes a sample)
+
+
+def gather(table: np.ndarray, index: np.ndarray, out: np.ndarray | None = None, add: bool = False) -> np.ndarray:
+    """``table[index]`` (into ``out``, or added to it), chunk by chunk: no index-sized temporaries."""
+    n = index.shape[0]
+    if out is None:
+        out = np.empty(n, dtype=table.dtype)
+    for a in range(0, n, _CHUNK):
+        b = min(a + _CHUNK, n)
+        if add:
+            out[a:b] += table.take(index[a:b])
+        else:
+            out[a:b] = table.take(index[a:b])
+    return out
+
+
+def _bincount8(table: np.ndarray, index: np.ndarray) -> np.ndarray:
+    """``bincount(table[index], minlength=8)``, chunk by chunk."""
+    hist = np.zeros(8, dtype=np.int64)
+    for a in range(0, index.shape[0], _CHUNK):
+        hist += np.bincount(table.take(index[a : a + _CHUNK]), minlength=8)[:8]
+    return hist
+
+
 def _offset_dtype(span: int) -> type:
     return np.int32 if span < (1 << 31) else np.int64
 
@@ -124,17 +149,17 @@ def layer_sums(
             tab = (u[:, None] * q_w[j, i] + u[None, :] * q_w[j, k]).reshape(-1)
             if acc is None:
                 tab = tab + base
-            part = tab.astype(dt).take(idx)
-            acc = part if acc is None else np.add(acc, part, out=acc)
+            acc = gather(tab.astype(dt), idx, acc, add=acc is not None)
         for i in singles:
             tab = u * q_w[j, i]
             if acc is None:
                 tab = tab + base
             col = inputs[i]
-            if off:
+            if off > 0:  # indexed by the code itself: no int64 copy of the codes (8 bytes a sample)
+                tab = np.concatenate((np.zeros(off, dtype=tab.dtype), tab))
+            elif off:
                 col = col.astype(np.int64) - off
-            part = tab.astype(dt).take(col)
-            acc = part if acc is None else np.add(acc, part, out=acc)
+            acc = gather(tab.astype(dt), col, acc, add=acc is not None)
         assert acc is not None
         sums.append(acc)
     return sums
@@ -215,7 +240,7 @@ class LayerOut:
             for j in range(L.n_out):
                 direct = self._acc_direct[j]
                 if isinstance(direct, tuple):  # (s_A over the look-up domain, indices): gathered on first use
-                    out[j] = direct[0].take(direct[1])
+                    gather(direct[0], direct[1], out[j])
                 elif direct is not None:
                     out[j] = direct
                 else:
@@ -335,8 +360,8 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
                 ev_lut = ev if ev is not None else np.zeros(0, dtype=np.uint8)
                 kern.lut_apply(sp, m0, np.ascontiguousarray(out["codes"], dtype=code_dt), ev_lut, codes[j], hist)
             else:
-                np.take(lut(out["codes"], code_dt), sp, out=codes[j])
-                hist = np.bincount(lut(ev).take(sp), minlength=8) if ev is not None else None
+                gather(lut(out["codes"], code_dt), sp, codes[j])
+                hist = _bincount8(lut(ev), sp) if ev is not None else None
             if ev is not None:
                 assert hist is not None
                 for bit, name in enumerate(DATA_EVENTS):
