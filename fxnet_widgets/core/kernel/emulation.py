@@ -17,6 +17,9 @@ from .layers import DATA_EVENTS, EVENT_NAMES, IntegerLayer, IntegerNetwork
 __all__ = ["Emulation", "emulate"]
 
 
+_DECIDE_ROWS = 1 << 20
+
+
 def _class_dtype(n_classes: int) -> type:
     for dt in (np.uint8, np.uint16, np.uint32):
         if n_classes - 1 <= np.iinfo(dt).max:
@@ -35,7 +38,11 @@ class _FloatRef:
     @property
     def decisions(self) -> np.ndarray:
         if self._decisions is None:
-            dec = self.network.decide(self.out)
+            # Network.decide block by block, held like Emulation.decisions (no int64 copy of a frame)
+            out = self.out.reshape(-1, self.out.shape[-1])
+            dec: np.ndarray = np.empty(out.shape[0], dtype=_class_dtype(out.shape[1]))
+            for a in range(0, out.shape[0], _DECIDE_ROWS):
+                dec[a : a + _DECIDE_ROWS] = self.network.decide(out[a : a + _DECIDE_ROWS])
             dec.setflags(write=False)
             self._decisions = dec
         return self._decisions
@@ -54,7 +61,8 @@ class Emulation:
     events : list, per layer, of ``{event name: (n_out_l,) int64 counts}``
     safe_acc_bits : list, per layer, of (n_out_l,) guaranteed-safe widths
     observed_min, observed_max : list, per layer, of the exact sum's range on the data
-    float_out, float_decisions : the float reference (computed on first access, cached)
+    float_out, float_decisions : the float reference (computed on first access, cached; decisions
+        held like ``decisions``)
     """
 
     def __init__(self, intnet: IntegerNetwork, prep: Prepared, outs: list[LayerOut]) -> None:
