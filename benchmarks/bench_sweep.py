@@ -1,7 +1,10 @@
 """Sweep throughput: plans evaluated per second on 100,000 samples of a 3-3-1 network.
 
-Prints plans/s in this process, on a local pool of one worker and of two
-workers, and the parallel efficiency ``rate(2) / (2 x rate(1))`` (target >= 80 %).
+Prints plans/s in this process with the numpy reference kernel (``FXNET_KERNEL=numpy``,
+the path every plan took before the compiled loops) and with the compiled loops, their
+CPU-time ratio (target >= 3x), the JIT compile time (cold: a fresh process with an empty
+numba cache; warm: a fresh process reading the cache), then plans/s on a local pool of one
+worker and of two workers and the parallel efficiency ``rate(2) / (2 x rate(1))`` (target >= 80 %).
 Every figure is measured in this one run: pools are started and warmed up before
 timing (start-up is a one-off cost, printed separately), settings are timed in
 turn, best of ``--repeat``, each run on plans no earlier run used (so no cache
@@ -15,6 +18,9 @@ from __future__ import annotations
 
 import argparse
 import os
+import subprocess
+import sys
+import tempfile
 import time
 from typing import Any
 
@@ -64,6 +70,60 @@ def timed(net: fw.Network, codes: np.ndarray, grid: dict, executor: Any, run: in
     return wall, cpu, recs
 
 
+_COMPILE = """
+import time, numpy as np
+t = time.perf_counter()
+from fxnet_widgets.core.kernel import _compiled
+k = _compiled.kernels()
+x = np.zeros((3, 4), np.uint8); tabs = np.zeros((1, 3, 256), np.int64); o = np.empty((1, 4), np.int32)
+k.dense_sums(x, 0, tabs, o, np.empty(1, np.int64), np.empty(1, np.int64))
+sp = np.zeros(4, np.int32); c = np.zeros(4, np.uint8); e = np.zeros(4, np.uint8); h = np.zeros(8, np.int64)
+k.lut_apply(sp, 0, c, e, c, h)
+k.coarse_apply(sp, 0, 0, 1, c, e, c, h, np.empty(4, np.int64))
+k.minmax(sp)
+print(time.perf_counter() - t)
+"""
+
+
+def compile_seconds(cache_dir: str | None) -> float:
+    """Seconds a fresh process takes to import numba and get the loops (for one set of dtypes)."""
+    env = dict(os.environ)
+    if cache_dir is not None:
+        env["NUMBA_CACHE_DIR"] = cache_dir
+    out = subprocess.run([sys.executable, "-c", _COMPILE], env=env, capture_output=True, text=True, check=True)
+    return float(out.stdout.strip().splitlines()[-1])
+
+
+def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) -> None:
+    """The numpy reference kernel against the compiled loops, in this process, in turn, best of N."""
+    best: dict[str, tuple[float, float]] = {}
+    n_plans = int(np.prod([len(v) for v in grid.values()]))
+    saved = os.environ.get("FXNET_KERNEL")
+    sweep(net, codes, {"table_bits": [15, 16]}, executor=SerialExecutor())  # load the compiled loops
+    try:
+        for r in range(repeat):
+            for key in ("numpy", "compiled"):
+                os.environ["FXNET_KERNEL"] = key if key == "numpy" else "numba"
+                wall, cpu, _ = timed(net, codes, grid, SerialExecutor(), r)
+                assert cpu is not None
+                if key not in best or cpu < best[key][1]:
+                    best[key] = (wall, cpu)
+    finally:
+        if saved is None:
+            os.environ.pop("FXNET_KERNEL", None)
+        else:
+            os.environ["FXNET_KERNEL"] = saved
+    ref, new = n_plans / best["numpy"][1], n_plans / best["compiled"][1]
+    wall_ref, wall_new = n_plans / best["numpy"][0], n_plans / best["compiled"][0]
+    print(f"  numpy reference kernel (FXNET_KERNEL=numpy): {ref:7.1f} plans/s of CPU ({wall_ref:.1f} plans/s wall)")
+    print(f"  compiled kernel (numba):                     {new:7.1f} plans/s of CPU ({wall_new:.1f} plans/s wall)")
+    print(f"  speed-up, CPU time:          {new / ref:.2f}x (target >= 3x)")
+    with tempfile.TemporaryDirectory() as tmp:
+        cold = compile_seconds(tmp)
+        warm = compile_seconds(tmp)
+    print(f"  JIT: numba import and compile {cold:.2f} s cold (empty cache), {warm:.2f} s warm (from the cache)")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=(__doc__ or "").splitlines()[0])
     ap.add_argument("--samples", type=int, default=100_000)
@@ -77,6 +137,7 @@ def main() -> None:
     load0 = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"sweep of {n_plans} distinct plans on {args.samples} samples of a 3-3-1 sigmoid network")
     print(f"  {os.cpu_count()} cores; load average before {load0:.2f}")
+    kernel_ratio(net, codes, grid, min(args.repeat, 8))
     pools = {}
     for workers in (1, 2):
         t0 = time.perf_counter()

@@ -9,13 +9,14 @@ Cached by value.
 from __future__ import annotations
 
 import math
+from functools import partial
 
 import numpy as np
 
 from ..formats import bits_for_range, round_float, signed_range, unsigned_range
 from ..network import Network
 from ..plan import Plan
-from .caches import QUANT_CACHE
+from .caches import QUANT_CACHE, TABLE_CACHE
 from .layers import Bounds, CodeFormat, IntegerLayer, IntegerNetwork
 from .tables import TableSpec, build_table
 
@@ -116,8 +117,9 @@ def _quantise_uncached(network: Network, plan: Plan) -> IntegerNetwork:
             k = acc_frac - lp.table_frac
             address_frac = lp.table_frac
             ilo, ihi = signed_range(lp.table_bits)
-            table = build_table(TableSpec(L.activation, lp.table_bits, lp.table_frac, k, lp.index_round,
-                                          lp.table_sample, out_frac, lp.table_round, out_lo, out_hi))  # fmt: skip
+            spec = TableSpec(L.activation, lp.table_bits, lp.table_frac, k, lp.index_round,
+                             lp.table_sample, out_frac, lp.table_round, out_lo, out_hi)  # fmt: skip
+            table = TABLE_CACHE.get(spec, partial(build_table, spec))
             code_min, code_max = int(table.min()), int(table.max())
         else:
             k = acc_frac - out_frac

@@ -11,7 +11,7 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from typing import Any
 
-__all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE",
+__all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
            "clear_caches", "cache_stats"]  # fmt: skip
 
 
@@ -57,9 +57,12 @@ FLOAT_CACHE = LRU(4)
 #: first-layer exact sums by the integer weights' values: a change of the accumulator,
 #: table or output fields keeps them (the product gathers are skipped)
 SUM_CACHE = LRU(4)
+#: activation tables (read-only) by their :class:`.tables.TableSpec`: plans that differ only
+#: in fields a table does not depend on (the accumulator width, the weights' values) share it
+TABLE_CACHE = LRU(256)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
-          "sums": SUM_CACHE}  # fmt: skip
+          "sums": SUM_CACHE, "table": TABLE_CACHE}  # fmt: skip
 
 
 def clear_caches() -> None:

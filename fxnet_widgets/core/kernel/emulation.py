@@ -11,10 +11,20 @@ from ..network import Network
 from ..plan import Plan
 from .build import build_integer_network
 from .caches import FLOAT_CACHE, LAYER_CACHE, SUM_CACHE
-from .evaluate import LayerOut, Prepared, frozen, layer_sums, prepare, run_layer
+from .evaluate import Bounds, LayerOut, Prepared, frozen, prepare, run_layer, sums_and_bounds
 from .layers import DATA_EVENTS, EVENT_NAMES, IntegerLayer, IntegerNetwork
 
 __all__ = ["Emulation", "emulate"]
+
+
+_DECIDE_ROWS = 1 << 20
+
+
+def _class_dtype(n_classes: int) -> type:
+    for dt in (np.uint8, np.uint16, np.uint32):
+        if n_classes - 1 <= np.iinfo(dt).max:
+            return dt
+    return np.uint64
 
 
 class _FloatRef:
@@ -28,7 +38,11 @@ class _FloatRef:
     @property
     def decisions(self) -> np.ndarray:
         if self._decisions is None:
-            dec = self.network.decide(self.out)
+            # Network.decide block by block, held like Emulation.decisions (no int64 copy of a frame)
+            out = self.out.reshape(-1, self.out.shape[-1])
+            dec: np.ndarray = np.empty(out.shape[0], dtype=_class_dtype(out.shape[1]))
+            for a in range(0, out.shape[0], _DECIDE_ROWS):
+                dec[a : a + _DECIDE_ROWS] = self.network.decide(out[a : a + _DECIDE_ROWS])
             dec.setflags(write=False)
             self._decisions = dec
         return self._decisions
@@ -40,13 +54,15 @@ class Emulation:
     Attributes
     ----------
     out_codes : (N, n_out) or (H, W, n_out) output codes of the last layer
-    decisions : (N,) or (H, W) int64 decisions
+    decisions : (N,) or (H, W) decisions, in the narrowest unsigned integer type that holds every
+        class index (uint8 up to 256 classes; the ``.npz`` file holds them as int64)
     acc : list, per layer, of s_A arrays (N x n_out_l or H x W x n_out_l)
     codes : list, per layer, of output codes
     events : list, per layer, of ``{event name: (n_out_l,) int64 counts}``
     safe_acc_bits : list, per layer, of (n_out_l,) guaranteed-safe widths
     observed_min, observed_max : list, per layer, of the exact sum's range on the data
-    float_out, float_decisions : the float reference (computed on first access, cached)
+    float_out, float_decisions : the float reference (computed on first access, cached; decisions
+        held like ``decisions``)
     """
 
     def __init__(self, intnet: IntegerNetwork, prep: Prepared, outs: list[LayerOut]) -> None:
@@ -60,11 +76,13 @@ class Emulation:
         self.events = [o.events for o in outs]
         self.safe_acc_bits = [L.safe_acc_bits for L in intnet.layers]
         last = outs[-1].codes
+        # the narrowest unsigned type that holds every class index (uint8 up to 256 classes):
+        # on a 4K frame int64 decisions alone are 2.7x the frame's bytes; the .npz file keeps int64
         if last.shape[0] == 1:
             assert intnet.threshold_code is not None
-            dec = (last[0] >= intnet.threshold_code).astype(np.int64)
+            dec = (last[0] >= intnet.threshold_code).view(np.uint8)
         else:
-            dec = np.argmax(last, axis=0).astype(np.int64)
+            dec = np.argmax(last, axis=0).astype(_class_dtype(last.shape[0]))
         dec.setflags(write=False)
         self._decisions = dec
 
@@ -225,6 +243,11 @@ class Emulation:
         return f"<Emulation {self.n} samples, {self.mismatch} differ from float, events {self.event_totals()}>"
 
 
+def _first_sums(layer: IntegerLayer, prep: Prepared, bits: int) -> tuple[list[np.ndarray], Bounds]:
+    sums, bounds = sums_and_bounds(layer, prep, None, bits)
+    return frozen(sums), bounds
+
+
 def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
     """Run the bit-exact integer network on unsigned input codes.
 
@@ -233,7 +256,9 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
     network, plan
         The float network and the fixed-point plan (checked against each other).
     codes
-        N x n_in unsigned integer codes, or an H x W x n_in image (e.g. uint8 RGB).
+        N x n_in unsigned integer codes, or an H x W x n_in image (e.g. uint8 RGB), or
+        their :func:`.evaluate.prepare` result (a search evaluating many plans on the same
+        data prepares it once, so the codes are not hashed again for every plan).
 
     Returns
     -------
@@ -241,7 +266,13 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
         Image input gives image-shaped arrays.
     """
     intnet = build_integer_network(network, plan)
-    prep = prepare(codes, network.input_bits, network.n_in)
+    if isinstance(codes, Prepared):
+        prep = codes
+        if prep.bits != network.input_bits or prep.flat.shape[1] != network.n_in:
+            raise ValueError(f"codes must be prepared for {network.input_bits}-bit inputs x {network.n_in}, "
+                             f"not {prep.bits}-bit x {prep.flat.shape[1]}")  # fmt: skip
+    else:
+        prep = prepare(codes, network.input_bits, network.n_in)
     outs: list[LayerOut] = []
     prev: LayerOut | None = None
     for li, layer in enumerate(intnet.layers):
@@ -251,10 +282,10 @@ def emulate(network: Network, plan: Plan, codes: Any) -> Emulation:
             if prev is None:
                 skey = (prep.key, network.input_bits, layer.q_w.shape, layer.q_w.tobytes(), layer.q_b.tobytes(),
                         layer.sum_min, layer.sum_max)  # fmt: skip
-                sums = SUM_CACHE.get(skey, lambda: frozen(layer_sums(layer, prep, None, network.input_bits)))
+                sums, bounds = SUM_CACHE.get(skey, lambda: _first_sums(layer, prep, network.input_bits))
             else:
-                sums = layer_sums(layer, None, prev.codes, network.input_bits)
-            return run_layer(layer, sums)
+                sums, bounds = sums_and_bounds(layer, None, prev.codes, network.input_bits)
+            return run_layer(layer, sums, bounds)
 
         prev = LAYER_CACHE.get(key, make)
         outs.append(prev)

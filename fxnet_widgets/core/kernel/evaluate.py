@@ -19,11 +19,12 @@ import numpy as np
 
 from ..formats import signed_range
 from ..network import as_codes
+from . import _compiled
 from .accumulate import post_accumulate, smallest_int
 from .caches import INPUT_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
 
-__all__ = ["Prepared", "prepare", "layer_sums", "LayerOut", "run_layer", "frozen"]
+__all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -35,6 +36,7 @@ class Prepared:
     pairs: tuple[tuple[int, int, np.ndarray], ...]  # (i, j, index = u_i << bits | u_j)
     singles: tuple[int, ...]
     n: int
+    bits: int = 0  # the input width the codes were checked against
 
 
 def _input_key(arr: np.ndarray, bits: int, n_in: int) -> str:
@@ -70,7 +72,7 @@ def prepare(codes: Any, bits: int, n_in: int) -> Prepared:
                 singles.append(n_in - 1)
         if flat.base is None:
             flat.setflags(write=False)
-        return Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]))
+        return Prepared(key, flat, shape, cols, tuple(pairs), tuple(singles), int(flat.shape[0]), bits)
 
     return INPUT_CACHE.get(key, make)
 
@@ -80,6 +82,31 @@ def prepare(codes: Any, bits: int, n_in: int) -> Prepared:
 # look-up table of steps 4-7 directly.
 _LUT_MAX = 1 << 21
 _LUT_FRACTION = 1.0  # a table over more sums than samples costs more than it saves
+
+
+_CHUNK = 1 << 20  # samples per gather: numpy's take copies a small-dtype index to intp (8 bytes a sample)
+
+
+def gather(table: np.ndarray, index: np.ndarray, out: np.ndarray | None = None, add: bool = False) -> np.ndarray:
+    """``table[index]`` (into ``out``, or added to it), chunk by chunk: no index-sized temporaries."""
+    n = index.shape[0]
+    if out is None:
+        out = np.empty(n, dtype=table.dtype)
+    for a in range(0, n, _CHUNK):
+        b = min(a + _CHUNK, n)
+        if add:
+            out[a:b] += table.take(index[a:b])
+        else:
+            out[a:b] = table.take(index[a:b])
+    return out
+
+
+def _bincount8(table: np.ndarray, index: np.ndarray) -> np.ndarray:
+    """``bincount(table[index], minlength=8)``, chunk by chunk."""
+    hist = np.zeros(8, dtype=np.int64)
+    for a in range(0, index.shape[0], _CHUNK):
+        hist += np.bincount(table.take(index[a : a + _CHUNK]), minlength=8)[:8]
+    return hist
 
 
 def _offset_dtype(span: int) -> type:
@@ -122,20 +149,61 @@ def layer_sums(
             tab = (u[:, None] * q_w[j, i] + u[None, :] * q_w[j, k]).reshape(-1)
             if acc is None:
                 tab = tab + base
-            part = tab.astype(dt).take(idx)
-            acc = part if acc is None else np.add(acc, part, out=acc)
+            acc = gather(tab.astype(dt), idx, acc, add=acc is not None)
         for i in singles:
             tab = u * q_w[j, i]
             if acc is None:
                 tab = tab + base
             col = inputs[i]
-            if off:
+            if off > 0:  # indexed by the code itself: no int64 copy of the codes (8 bytes a sample)
+                tab = np.concatenate((np.zeros(off, dtype=tab.dtype), tab))
+            elif off:
                 col = col.astype(np.int64) - off
-            part = tab.astype(dt).take(col)
-            acc = part if acc is None else np.add(acc, part, out=acc)
+            acc = gather(tab.astype(dt), col, acc, add=acc is not None)
         assert acc is not None
         sums.append(acc)
     return sums
+
+
+Bounds = tuple[np.ndarray, np.ndarray]  # per neuron, the min and max of the offset sums on the data
+
+
+def _dense_compiled(layer: IntegerLayer, prev_codes: np.ndarray) -> tuple[list[np.ndarray], Bounds] | None:
+    """Layer sums from the previous layer's codes in one compiled pass (None: numpy is used)."""
+    lo_in, hi_in = layer.inputs.lo, layer.inputs.hi
+    span_in = hi_in - lo_in + 1
+    if layer.n_out * layer.n_in * span_in > (1 << 22) or prev_codes.shape[0] != layer.n_in:
+        return None
+    u = np.arange(lo_in, hi_in + 1, dtype=np.int64)
+    tabs = layer.q_w[:, :, None] * u[None, None, :]  # exact: the int64 proof bounds every product
+    base = layer.q_b - np.array(layer.sum_min, dtype=np.int64)
+    tabs[:, 0, :] += base[:, None]
+    width = max(hi - lo for lo, hi in zip(layer.sum_min, layer.sum_max))
+    n = prev_codes.shape[1]
+    out: np.ndarray = np.empty((layer.n_out, n), dtype=_offset_dtype(width))
+    mins = np.empty(layer.n_out, dtype=np.int64)
+    maxs = np.empty(layer.n_out, dtype=np.int64)
+    _compiled.kernels().dense_sums(np.ascontiguousarray(prev_codes), lo_in, tabs, out, mins, maxs)
+    return list(out), (mins, maxs)
+
+
+def sums_and_bounds(
+    layer: IntegerLayer, prep: Prepared | None, prev_codes: np.ndarray | None, bits: int
+) -> tuple[list[np.ndarray], Bounds]:
+    """:func:`layer_sums` and, per neuron, their min and max on the data (compiled where it runs)."""
+    n = prep.n if prev_codes is None and prep is not None else (prev_codes.shape[1] if prev_codes is not None else 0)
+    if prev_codes is not None and n and _compiled.use_compiled(n):
+        done = _dense_compiled(layer, prev_codes)
+        if done is not None:
+            return done
+    sums = layer_sums(layer, prep, prev_codes, bits)
+    mins = np.zeros(layer.n_out, dtype=np.int64)
+    maxs = np.zeros(layer.n_out, dtype=np.int64)
+    if n:
+        kern = _compiled.kernels() if _compiled.use_compiled(n) else None
+        for j, sp in enumerate(sums):
+            mins[j], maxs[j] = kern.minmax(sp) if kern is not None else (int(sp.min()), int(sp.max()))
+    return sums, (mins, maxs)
 
 
 def frozen(arrays: list[np.ndarray]) -> list[np.ndarray]:
@@ -172,7 +240,7 @@ class LayerOut:
             for j in range(L.n_out):
                 direct = self._acc_direct[j]
                 if isinstance(direct, tuple):  # (s_A over the look-up domain, indices): gathered on first use
-                    out[j] = direct[0].take(direct[1])
+                    gather(direct[0], direct[1], out[j])
                 elif direct is not None:
                     out[j] = direct
                 else:
@@ -182,8 +250,68 @@ class LayerOut:
         return self._acc
 
 
-def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
+_COARSE_MIN_SPAN = 1 << 13  # below this many distinct sums the exact look-up table is cheap enough
+_MIXED_CHUNK = 1 << 16  # samples of step buckets computed per call
+
+
+def _event_bits(out: dict[str, Any], size: int) -> np.ndarray:
+    ev = np.zeros(size, dtype=np.uint8)
+    for bit, name in enumerate(DATA_EVENTS):
+        if out[name] is not None:
+            ev |= out[name].astype(np.uint8) << np.uint8(bit)
+    return ev
+
+
+def _add_hist(counts: dict[str, np.ndarray], j: int, hist: np.ndarray) -> None:
+    for bit, name in enumerate(DATA_EVENTS):
+        counts[name][j] += int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
+
+
+def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1: int, row: np.ndarray,
+            counts: dict[str, np.ndarray]) -> bool:  # fmt: skip
+    """Steps 4-7 of neuron ``j`` through bucket tables (compiled; False: not applicable, nothing done).
+
+    Applies when no sum on the data can overflow the accumulator: then the code, ``table_low``
+    and ``table_high`` are monotone in the sum (rounding, clamp and the table's entries are), so a
+    bucket whose first and last sum agree on all three agrees throughout.
+    """
+    lo = layer.sum_min[j]
+    alo, ahi = signed_range(layer.plan.acc_bits)
+    table = layer.table
+    if lo + m0 < alo or lo + m1 > ahi or (table is not None and not bool(np.all(table[1:] >= table[:-1]))):
+        return False
+    n = sp.shape[0]
+    b = ((m1 - m0 + 1) // min(max(n // 8, 1024), 1 << 16)).bit_length()  # bucket width 2**b
+    if b == 0:
+        return False
+    nb = ((m1 - m0) >> b) + 1
+    starts = m0 + (np.arange(nb, dtype=np.int64) << np.int64(b))
+    ends = np.minimum(starts + ((1 << b) - 1), m1)
+    out = post_accumulate(layer, np.concatenate((starts, ends)) + np.int64(lo), lo + m0, lo + m1)
+    c, ev = out["codes"], _event_bits(out, 2 * nb)
+    ev_q = ev[:nb].copy()
+    ev_q[(c[:nb] != c[nb:]) | (ev[:nb] != ev[nb:])] = 128  # a step inside: its samples are computed exactly
+    hist = np.zeros(8, dtype=np.int64)
+    idx = np.empty(min(n, _MIXED_CHUNK), dtype=np.int64)  # bounded: no per-sample index array on a large frame
+    codes_q = np.ascontiguousarray(c[:nb], dtype=row.dtype)
+    start = 0
+    while start < n:
+        start, nm = kern.coarse_apply(sp, start, m0, b, codes_q, ev_q, row, hist, idx)
+        if nm:  # the samples of buckets with a step inside: exactly, per sample
+            sel = idx[:nm]
+            rest = post_accumulate(layer, sp[sel].astype(np.int64) + np.int64(lo), lo + m0, lo + m1)
+            row[sel] = rest["codes"]
+            for name in DATA_EVENTS:
+                if rest[name] is not None:
+                    counts[name][j] += int(np.count_nonzero(rest[name]))
+    _add_hist(counts, j, hist)
+    return True
+
+
+def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
+    """Steps 4-7 on the offset sums ``shifted``; ``bounds``: their per-neuron min and max, when known."""
     n = shifted[0].shape[0] if shifted else 0
+    kern = _compiled.kernels() if _compiled.use_compiled(n) else None
     code_dt = smallest_int(layer.code_min, layer.code_max)
     if layer.code_min >= 0 and layer.code_max <= 255:
         code_dt = np.uint8
@@ -195,10 +323,17 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
     for j, sp in enumerate(shifted):
         lo = layer.sum_min[j]
         # the look-up table covers only the sums seen on the data: [lo + m0, lo + m1]
-        m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
+        if bounds is not None and n:
+            m0, m1 = int(bounds[0][j]), int(bounds[1][j])
+        else:
+            m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
+        wide = span >= max(_COARSE_MIN_SPAN, n // 2)  # an exact look-up table would cost about a pass per sample
+        if kern is not None and wide and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
+            acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
+            continue
         if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
             dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
             out = post_accumulate(layer, dom, lo + m0, lo + m1)
@@ -209,17 +344,26 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray]) -> LayerOut:
                 full[m0:] = v
                 return full
 
-            np.take(lut(out["codes"], code_dt), sp, out=codes[j])
             acc_lut = out["acc"]
             changed = out["acc_overflow"] is not None
             acc_direct.append((lut(np.asarray(acc_lut)), sp) if changed else None)
             flags = [out[k] for k in DATA_EVENTS]
+            ev = None
             if any(f is not None and f.any() for f in flags):
                 ev = np.zeros(span, dtype=np.uint8)
                 for bit, f in enumerate(flags):
                     if f is not None:
                         ev |= f.astype(np.uint8) << np.uint8(bit)
-                hist = np.bincount(lut(ev).take(sp), minlength=8)
+            hist: np.ndarray | None = None
+            if kern is not None:  # one fused pass: codes and the event histogram
+                hist = np.zeros(8, dtype=np.int64)
+                ev_lut = ev if ev is not None else np.zeros(0, dtype=np.uint8)
+                kern.lut_apply(sp, m0, np.ascontiguousarray(out["codes"], dtype=code_dt), ev_lut, codes[j], hist)
+            else:
+                gather(lut(out["codes"], code_dt), sp, codes[j])
+                hist = _bincount8(lut(ev), sp) if ev is not None else None
+            if ev is not None:
+                assert hist is not None
                 for bit, name in enumerate(DATA_EVENTS):
                     counts[name][j] = int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
         else:

@@ -16,7 +16,8 @@ from typing import Any
 
 import numpy as np
 
-from ...kernel import emulate
+from ...kernel import _compiled, emulate
+from ...kernel.evaluate import Prepared, prepare
 from ...network import Network, as_codes
 from ...plan import Plan
 from ...starting import start_plan, with_safe_acc
@@ -67,7 +68,7 @@ def _network_from(doc: dict[str, Any]) -> Network:
 
 
 def _evaluate_one(
-    net: Network, codes: np.ndarray, labels: np.ndarray | None, task: PlanTask, cost_key: str,
+    net: Network, codes: np.ndarray | Prepared, labels: np.ndarray | None, task: PlanTask, cost_key: str,
     options: dict[str, Any],
 ) -> SweepRecord:  # fmt: skip
     plan = Plan.from_dict(task.plan_doc)
@@ -110,7 +111,9 @@ def _run_chunk(
 ) -> list[SweepRecord]:  # fmt: skip
     """Evaluate one chunk of plans (runs in a worker)."""
     net = _network_from(net_doc)
-    return [_evaluate_one(net, codes, labels, t, cost_key, options) for t in tasks]
+    _compiled.load_for(codes.shape[0])  # many plans on the same data: the compiled loops pay for their import
+    prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
+    return [_evaluate_one(net, prep, labels, t, cost_key, options) for t in tasks]
 
 
 # ---------------------------------------------------------------------------------

@@ -1,0 +1,145 @@
+"""Fused per-sample loops of the kernel (numba), compiled on first use, cached on disk.
+
+Two loops, both pure gathers and integer additions (no rounding, no overflow
+mode: those stay in :mod:`..formats`, applied by :func:`.accumulate.post_accumulate`
+to the look-up domain):
+
+``dense_sums``  every neuron's exact sum minus ``sum_min`` from product tables
+                gathered by input code, and each neuron's observed min and max,
+                in one pass over the samples (numpy: two passes per input and neuron)
+``lut_apply``   a neuron's codes read from its steps 4-7 look-up table and the
+                histogram of its event bits, in one pass (numpy: three)
+``coarse_apply`` the same from a table over buckets of ``2**b`` sums, for a neuron whose steps
+                4-7 are monotone in the sum (no accumulator overflow on the data): a bucket
+                whose two ends give the same code and events gives them throughout; the
+                samples of the other buckets are listed and computed exactly
+
+``FXNET_KERNEL`` (read at every call) chooses: ``numpy`` the numpy reference path, ``numba``
+the compiled loops; unset (auto), the loops run once they are loaded (:func:`kernels`), which
+a search does in each worker, since importing numba costs a fixed ~0.1 GB of memory and
+~0.5 s that a single emulation of one frame does not win back. The tests run both paths on
+the same cases and require identical results.
+"""
+
+from __future__ import annotations
+
+import os
+import threading
+from typing import Any
+
+import numpy as np
+
+__all__ = ["MIN_SAMPLES", "kernels", "load_for", "use_compiled"]
+
+#: below this many samples the numpy path is used (a call's fixed cost dominates)
+MIN_SAMPLES = 2048
+
+_LOCK = threading.Lock()
+_KERNELS: Any = None
+
+
+def use_compiled(n: int) -> bool:
+    """Whether the compiled loops run for ``n`` samples (see ``FXNET_KERNEL`` above)."""
+    if n < MIN_SAMPLES:
+        return False
+    mode = os.environ.get("FXNET_KERNEL", "").strip().lower()
+    if mode == "numpy":
+        return False
+    return mode == "numba" or _KERNELS is not None
+
+
+def load_for(n: int) -> None:
+    """Load the loops for work on ``n`` samples, unless ``FXNET_KERNEL=numpy`` (a search calls this)."""
+    if n >= MIN_SAMPLES and os.environ.get("FXNET_KERNEL", "").strip().lower() != "numpy":
+        kernels()
+
+
+class _Kernels:
+    def __init__(self) -> None:
+        import numba
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def dense_sums(x: np.ndarray, off: int, tabs: np.ndarray, out: np.ndarray, mins: np.ndarray,
+                       maxs: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # x (n_in, N) codes; tabs (n_out, n_in, span) int64 with the offset bias in input 0
+            n_out, n_in, n = tabs.shape[0], tabs.shape[1], x.shape[1]
+            for j in range(n_out):  # neuron by neuron: contiguous writes, the min/max held in registers
+                row = out[j]
+                t0 = tabs[j, 0]
+                for i in range(n):
+                    row[i] = t0[np.int64(x[0, i]) - off]
+                for r in range(1, n_in):
+                    t = tabs[j, r]
+                    for i in range(n):
+                        row[i] += t[np.int64(x[r, i]) - off]
+                lo = np.int64(row[0]) if n else np.int64(0)
+                hi = lo
+                for i in range(n):
+                    v = np.int64(row[i])
+                    lo = min(lo, v)
+                    hi = max(hi, v)
+                mins[j] = lo
+                maxs[j] = hi
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def lut_apply(sp: np.ndarray, m0: int, codes_lut: np.ndarray, ev_lut: np.ndarray, out: np.ndarray,
+                      hist: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            if ev_lut.shape[0]:
+                for i in range(sp.shape[0]):
+                    a = np.int64(sp[i]) - m0
+                    out[i] = codes_lut[a]
+                    e = ev_lut[a]
+                    if e:  # bin 0 (no event) is never read
+                        hist[e] += 1
+            else:
+                for i in range(sp.shape[0]):
+                    out[i] = codes_lut[np.int64(sp[i]) - m0]
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def coarse_apply(sp: np.ndarray, start: int, m0: int, b: int, codes_q: np.ndarray, ev_q: np.ndarray,
+                         out: np.ndarray, hist: np.ndarray,
+                         idx: np.ndarray) -> tuple[int, int]:  # fmt: skip # pragma: no cover
+            # bucket q = (sp - m0) >> b; ev_q: the bucket's event bits, bit 7 set where the bucket
+            # holds a step: its samples are listed in idx for the caller to compute; stops when idx is
+            # full and returns (where to resume, how many listed)
+            nm = 0
+            cap = idx.shape[0]
+            for i in range(start, sp.shape[0]):
+                q = (np.int64(sp[i]) - m0) >> b
+                out[i] = codes_q[q]
+                e = ev_q[q]
+                if e:  # rare: no histogram store (and its store-to-load stall) on a quiet sample
+                    if e & 128:
+                        idx[nm] = i
+                        nm += 1
+                        if nm == cap:
+                            return i + 1, nm
+                    else:
+                        hist[e] += 1
+            return sp.shape[0], nm
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def minmax(sp: np.ndarray) -> tuple[int, int]:  # pragma: no cover
+            lo = np.int64(sp[0])
+            hi = lo
+            for i in range(1, sp.shape[0]):
+                v = np.int64(sp[i])
+                if v < lo:
+                    lo = v
+                elif v > hi:
+                    hi = v
+            return lo, hi
+
+        self.dense_sums = dense_sums
+        self.lut_apply = lut_apply
+        self.coarse_apply = coarse_apply
+        self.minmax = minmax
+
+
+def kernels() -> _Kernels:
+    """The compiled loops (imported and compiled on first use)."""
+    global _KERNELS
+    with _LOCK:
+        if _KERNELS is None:
+            _KERNELS = _Kernels()
+        return _KERNELS

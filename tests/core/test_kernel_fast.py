@@ -1,0 +1,178 @@
+"""The compiled kernel loops (numba) against the numpy reference path and the slow reference.
+
+``FXNET_KERNEL=numpy`` selects the numpy path; ``_compiled.MIN_SAMPLES`` is lowered so the
+compiled loops also run on the small hypothesis cases. Every case runs both paths from empty
+caches and requires identical accumulators, codes, events, observed ranges and decisions; a
+slice is also checked against ``tests/_support/fxref.py`` (the contract on Python ints).
+"""
+
+import fxref
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+import fxnet_widgets as fw
+from fxnet_widgets.core import kernel
+from fxnet_widgets.core.formats import ROUNDINGS
+from fxnet_widgets.core.kernel import _compiled
+
+
+@st.composite
+def cases(draw):
+    n_layers = draw(st.integers(1, 3))
+    bits = draw(st.integers(1, 9))
+    n_in = draw(st.integers(1, 4))
+    sizes = [n_in] + [draw(st.integers(1, 3)) for _ in range(n_layers)]
+    weight = st.floats(-8, 8, allow_nan=False, allow_infinity=False, width=64)
+    layers, plans = [], []
+    for li in range(n_layers):
+        act = draw(st.sampled_from(["sigmoid", "tanh", "relu", "identity"]))
+        w = [[draw(weight) for _ in range(sizes[li])] for _ in range(sizes[li + 1])]
+        b = [draw(st.floats(-4, 4, allow_nan=False, width=64)) for _ in range(sizes[li + 1])]
+        layers.append({"weights": w, "bias": b, "activation": act})
+        p = {
+            "weight_bits": draw(st.integers(2, 12)),
+            "weight_frac": draw(st.integers(-2, 8)),
+            "weight_round": draw(st.sampled_from(ROUNDINGS)),
+            "acc_bits": draw(st.integers(4, 24)),
+            "acc_overflow": draw(st.sampled_from(["wrap", "saturate"])),
+            "index_round": draw(st.sampled_from(ROUNDINGS)),
+            "table_round": draw(st.sampled_from(ROUNDINGS)),
+            "out_bits": draw(st.integers(2, 10)),
+        }
+        if act in ("sigmoid", "tanh"):
+            p["table_bits"] = draw(st.integers(2, 10))
+            p["table_frac"] = draw(st.integers(-2, 12))
+            p["table_sample"] = draw(st.sampled_from(["edge", "mid"]))
+        else:
+            p["out_frac"] = draw(st.integers(-3, 10))
+        plans.append(p)
+    doc = {
+        "input": {"bits": bits, "scale": draw(st.sampled_from(["pow2", "full"]))},
+        "layers": layers,
+        "output": {"threshold": draw(st.floats(-1, 1, width=64))},
+    }
+    n = draw(st.sampled_from([1, 7, 300, 5000]))  # 5000: the pair tables and look-ups of steps 4-7 engage
+    seed = draw(st.integers(0, 2**32 - 1))
+    codes = np.random.default_rng(seed).integers(0, 1 << bits, (n, n_in))
+    return fw.Network.from_dict(doc), fw.Plan.from_dict({"layers": plans}), codes
+
+
+def _run(net, plan, codes, path):
+    kernel.clear_caches()  # the caches are keyed by value, not by path: start each run empty
+    with pytest.MonkeyPatch.context() as m:
+        if path == "numpy":
+            m.setenv("FXNET_KERNEL", "numpy")
+        else:
+            m.setenv("FXNET_KERNEL", "numba")
+            m.setattr(_compiled, "MIN_SAMPLES", 0)
+        r = fw.emulate(net, plan, codes)
+    out = {
+        "acc": [a.tolist() for a in r.acc],
+        "codes": [c.tolist() for c in r.codes],
+        "events": [{k: v.tolist() for k, v in e.items()} for e in r.events],
+        "observed": [(a.tolist(), b.tolist()) for a, b in zip(r.observed_min, r.observed_max)],
+        "decisions": r.decisions.tolist(),
+    }
+    kernel.clear_caches()
+    return out
+
+
+@settings(max_examples=120, deadline=None)
+@given(cases())
+def test_compiled_path_equals_numpy_reference(case):
+    net, plan, codes = case
+    ref = _run(net, plan, codes, "numpy")
+    fast = _run(net, plan, codes, "compiled")
+    assert fast == ref
+    # and both equal the contract run on Python ints (a slice: the slow reference is slow)
+    sub = codes[:40].tolist()
+    slow = fxref.run(net.to_dict(), plan.to_dict(), sub)
+    for li, L in enumerate(slow["layers"]):
+        assert fast["acc"][li][:40] == L["acc"], f"acc of layer {li + 1}"
+        assert fast["codes"][li][:40] == L["codes"], f"codes of layer {li + 1}"
+    assert fast["decisions"][:40] == slow["decisions"]
+
+
+def test_numpy_switch_is_read_at_every_call(monkeypatch):
+    monkeypatch.setattr(_compiled, "MIN_SAMPLES", 0)
+    monkeypatch.setenv("FXNET_KERNEL", "numpy")
+    assert not _compiled.use_compiled(10**6)
+    monkeypatch.setenv("FXNET_KERNEL", "numba")
+    assert _compiled.use_compiled(1)
+    monkeypatch.setenv("FXNET_KERNEL", "")  # auto: once loaded
+    monkeypatch.setattr(_compiled, "_KERNELS", None)
+    assert not _compiled.use_compiled(10**6)
+    _compiled.kernels()
+    assert _compiled.use_compiled(10**6)
+
+
+def test_event_counts_on_a_sweep_like_plan_match_the_numpy_path():
+    # narrow tables saturate the index (table_low/high) on most samples: the fused histogram counts them
+    rng = np.random.default_rng(5)
+    net = fw.Network.from_layers(
+        [(rng.normal(0, 4, (3, 3)), rng.normal(0, 1, 3), "sigmoid"), (rng.normal(0, 4, (1, 3)), [0.0], "sigmoid")]
+    )
+    codes = rng.integers(0, 256, (20000, 3), dtype=np.uint8)
+    plan = fw.Plan.uniform(net, weight_bits=9, weight_frac=5, acc_bits=16, acc_overflow="wrap", table_bits=5,
+                           table_frac=4, out_bits=6)  # fmt: skip
+    ref = _run(net, plan, codes, "numpy")
+    fast = _run(net, plan, codes, "compiled")
+    assert fast == ref
+    assert sum(sum(e["table_high"]) + sum(e["table_low"]) for e in fast["events"]) > 0
+    assert sum(sum(e["acc_overflow"]) for e in fast["events"]) > 0
+
+
+def test_prepared_codes_give_the_same_result_and_are_checked():
+    rng = np.random.default_rng(2)
+    net = fw.Network.from_layers([(rng.normal(0, 2, (2, 3)), [0.1, -0.2], "tanh")])
+    plan = fw.Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=18, table_bits=9, table_frac=5, out_bits=8)
+    codes = rng.integers(0, 256, (3000, 3))
+    prep = kernel.evaluate.prepare(codes, net.input_bits, net.n_in)
+    assert fw.emulate(net, plan, prep).codes[0].tolist() == fw.emulate(net, plan, codes).codes[0].tolist()
+    other = fw.Network.from_layers([(rng.normal(0, 2, (1, 2)), [0.0], "sigmoid")])
+    with pytest.raises(ValueError, match="codes must be prepared for"):
+        fw.emulate(other, fw.Plan.uniform(other, weight_bits=8, weight_frac=5, acc_bits=18, table_bits=9,
+                                          table_frac=5, out_bits=8), prep)  # fmt: skip
+
+
+@pytest.mark.parametrize("index_round", ["floor", "half-even", "trunc"])
+def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round):
+    # wide sums (weight_frac 8) and a safe accumulator: steps 4-7 are monotone in the sum, so the
+    # compiled path reads codes from buckets of sums; a narrow table saturates (table_low/high)
+    rng = np.random.default_rng(9)
+    net = fw.Network.from_layers(
+        [(rng.normal(0, 4, (3, 3)), rng.normal(0, 1, 3), "sigmoid"), (rng.normal(0, 4, (1, 3)), [0.0], "tanh")]
+    )
+    codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
+    plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=30, index_round=index_round,
+                           table_bits=7, table_frac=4, out_bits=8)  # fmt: skip
+    calls = []
+    real = _compiled.kernels().coarse_apply
+    monkeypatch.setattr(_compiled.kernels(), "coarse_apply", lambda *a: calls.append(1) or real(*a))
+    ref = _run(net, plan, codes, "numpy")
+    fast = _run(net, plan, codes, "compiled")
+    assert calls, "the bucket path must have run"
+    assert fast == ref
+    assert sum(sum(e["table_high"]) + sum(e["table_low"]) for e in fast["events"]) > 0
+    # against the contract on Python ints, on a slice
+    slow = fxref.run(net.to_dict(), plan.to_dict(), codes[:200].tolist())
+    for li, L in enumerate(slow["layers"]):
+        assert fast["codes"][li][:200] == L["codes"]
+
+
+def test_bucket_path_resumes_when_its_step_list_is_full(monkeypatch):
+    # a step list of 7 samples: the loop must stop and resume many times and still match numpy
+    from fxnet_widgets.core.kernel import evaluate as kev
+
+    monkeypatch.setattr(kev, "_MIXED_CHUNK", 7)
+    rng = np.random.default_rng(4)
+    net = fw.Network.from_layers([(rng.normal(0, 4, (2, 3)), rng.normal(0, 1, 2), "sigmoid")])
+    codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
+    plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=30, table_bits=8, table_frac=5, out_bits=8)
+    calls = []
+    real = _compiled.kernels().coarse_apply
+    monkeypatch.setattr(_compiled.kernels(), "coarse_apply", lambda *a: calls.append(1) or real(*a))
+    assert _run(net, plan, codes, "compiled") == _run(net, plan, codes, "numpy")
+    assert len(calls) > 2 * len(net.layers[0].bias), "the loop must have resumed"
