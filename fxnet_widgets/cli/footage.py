@@ -75,7 +75,7 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _split(args: argparse.Namespace, net: Any, plan: Any) -> Any:
-    from ..core.analysis.search import SerialExecutor, _local_pool
+    from ..core.analysis.search import SerialExecutor, local_pool
     from ..core.footage.parallel import analyse_footage_split
 
     if args.labels or args.overlay:
@@ -92,7 +92,7 @@ def _split(args: argparse.Namespace, net: Any, plan: Any) -> Any:
             return analyse_footage_split(net, plan, args.source, client, frames=args.frames, progress=progress)
     if args.workers < 0:
         raise CliError(f"fxnet: --workers must be at least 0, not {args.workers}")
-    ex = SerialExecutor() if args.workers == 0 else _local_pool(args.workers)
+    ex = SerialExecutor() if args.workers == 0 else local_pool(args.workers)
     try:
         return analyse_footage_split(net, plan, args.source, ex, frames=args.frames, progress=progress)
     finally:
