@@ -26,7 +26,7 @@ from .formats import OVERFLOWS, ROUNDINGS
 if TYPE_CHECKING:
     from .network import Network
 
-__all__ = ["LayerPlan", "Plan", "PLAN_FIELDS", "INT_LIMITS", "CHOICES"]
+__all__ = ["LayerPlan", "Plan", "PLAN_FIELDS", "INT_LIMITS", "CHOICES", "check_field"]
 
 #: integer fields and their inclusive limits
 INT_LIMITS: dict[str, tuple[int, int]] = {
@@ -64,7 +64,11 @@ PLAN_FIELDS = (
 )  # fmt: skip
 
 
-def _check_field(name: str, value: Any, where: str) -> Any:
+def check_field(name: str, value: Any, where: str) -> Any:
+    """One plan field checked against the contract's limits (``where`` prefixes the error); returns it.
+
+    The one set of limit checks: plans, grids and tune's moves all use it.
+    """
     if name in INT_LIMITS:
         if value is None and name in DEFAULTS:
             return None
@@ -100,7 +104,7 @@ class LayerPlan:
 
     def __post_init__(self) -> None:
         for f in fields(self):
-            _check_field(f.name, getattr(self, f.name), "")
+            check_field(f.name, getattr(self, f.name), "")
 
     @classmethod
     def from_dict(cls, doc: Any, where: str = "") -> LayerPlan:
@@ -112,7 +116,7 @@ class LayerPlan:
         for key in ALWAYS_REQUIRED:
             if key not in doc:
                 raise ValueError(f"{where}{key} is missing")
-        values = {k: _check_field(k, v, where) for k, v in doc.items()}
+        values = {k: check_field(k, v, where) for k, v in doc.items()}
         return cls(**values)
 
     def to_dict(self) -> dict[str, Any]:
@@ -222,7 +226,7 @@ class Plan:
         if layer is not None and (not isinstance(layer, int) or not -len(self.layers) <= layer < len(self.layers)):
             raise ValueError(f"layer must be None or an index below {len(self.layers)}, not {layer!r}")
         for k, v in values.items():
-            _check_field(k, v, "")
+            check_field(k, v, "")
         idx = range(len(self.layers)) if layer is None else [layer % len(self.layers)]
         layers = list(self.layers)
         for i in idx:

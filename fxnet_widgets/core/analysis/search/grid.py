@@ -15,7 +15,7 @@ import numpy as np
 
 from ...network import Network
 from ...plan import CHOICES, PLAN_FIELDS, Plan
-from ...plan import _check_field as check_plan_field
+from ...plan import check_field as check_plan_field
 
 __all__ = ["TABLE_FIELDS", "KEEP_RANGE_PAIRS", "parse_grid", "check_grid", "apply_settings"]
 

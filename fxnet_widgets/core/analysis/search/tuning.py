@@ -9,7 +9,7 @@ from typing import Any, NamedTuple
 from ...kernel import emulate
 from ...network import Network
 from ...plan import Plan
-from ...plan import _check_field as check_plan_field
+from ...plan import check_field as check_plan_field
 from ..cost import HardwareCost, hardware_cost
 from ..metrics import ErrorMetrics, error_metrics
 from .evaluate import PlanTask, argmax_ties, base_plan, check_cost_key, check_cost_options, evaluate, prepare_data
