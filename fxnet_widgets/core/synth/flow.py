@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from ..analysis.video import VIDEO_FORMATS
-from ..fileio import FileFormatError, atomic_write_bytes, atomic_write_json, load_json
+from ..fileio import FileFormatError, atomic_write_bytes, atomic_write_json, load_json, loads_json
 from .netlist import WRAPPER, cell_counts, nextpnr_figures, ports, resource_counts, wrapper_verilog
 from .result import SynthesisResult
 from .targets import target as get_target
@@ -98,7 +98,7 @@ def _latency(files: dict[str, bytes]) -> int | None:
     if raw is None:
         return None
     try:
-        value = json.loads(raw.decode("utf-8")).get("latency")
+        value = loads_json(raw.decode("utf-8"), "datapath.json").get("latency")
     except (ValueError, AttributeError):
         return None
     return value if isinstance(value, int) and not isinstance(value, bool) else None
