@@ -14,7 +14,6 @@ from pathlib import Path
 import pytest
 from fxtools import missing
 
-import fxnet_widgets
 from fxnet_widgets.core.analysis.cost import hardware_cost
 from fxnet_widgets.core.synth import CAUTION, SynthesisCancelled, ToolError, synthesize
 from fxnet_widgets.widgets.hardware import CLOCK_MHZ, HardwarePanel
@@ -126,19 +125,6 @@ def test_the_clock_chooser_passes_a_clock_in_mhz(session):
     panel.start()
     assert panel.wait(30)
     assert (got["target"], got["video"], got["clock_mhz"]) == ("ice40-hx8k", None, 48.0)
-
-
-def test_the_default_run_needs_the_datapath_generator(session):
-    if hasattr(fxnet_widgets, "write_datapath"):
-        pytest.skip("write_datapath is installed: the default run is covered by tests/core/test_synth.py")
-    panel = HardwarePanel(session)
-    panel.start()
-    assert panel.wait(60)
-    msg = "fxnet_widgets.write_datapath must be installed to synthesize a network and plan, but it is missing"
-    if shutil.which("yosys") is None:
-        assert panel.error.startswith("yosys must be installed")
-    else:
-        assert panel.error == msg
 
 
 def test_wrong_session_is_a_type_error():

@@ -76,8 +76,15 @@ def test_scatter_holds_every_record_by_event_class(explorer):
         for k, i in enumerate(panel._index[cls]):
             r = recs[i]
             ev = r.events
-            want = "overflow" if ev["acc_overflow"] else (
-                "clamps" if ev["table_low"] + ev["table_high"] + ev["weight_clip"] + ev["bias_clip"] else "no events")
+            want = (
+                "overflow"
+                if ev["acc_overflow"]
+                else (
+                    "clamps"
+                    if ev["table_low"] + ev["table_high"] + ev["weight_clip"] + ev["bias_clip"]
+                    else "no events"
+                )
+            )
             assert cls == want
             assert mark.x[k] == r.cost and mark.y[k] == pytest.approx(100 * r.mismatch / 60)  # 60 samples
             lp = r.plan.layers[0]
@@ -141,14 +148,32 @@ def test_stop_keeps_the_finished_records(explorer):
     assert not panel.running and not panel.sweep_button.disabled and panel.stop_button.disabled
 
 
-def test_background_run_and_stop(explorer):
+def test_background_run_and_stop(explorer, monkeypatch):
+    import threading
+
+    import fxnet_widgets.widgets.search_panel as panel_module
+
     want = direct_sweep(explorer, GRID)
     panel = SearchPanel(explorer, GRID, chunk_seconds=0.0)
+    # hold the background run after its first piece, so "stop" lands mid-run on every machine
+    first_done, release, real = threading.Event(), threading.Event(), panel_module.sweep
+
+    def gated(*args, **kwargs):
+        out = real(*args, **kwargs)
+        if not first_done.is_set():
+            first_done.set()
+            release.wait(30)
+        return out
+
+    monkeypatch.setattr(panel_module, "sweep", gated)
     panel.run()
+    assert first_done.wait(30)
     panel.stop()
+    release.set()
     assert panel.join(30)
     n = len(panel.records)
-    assert n < 12 and panel.records == want[:n]
+    assert 0 < n < 12 and panel.records == want[:n]
+    monkeypatch.undo()
     panel.run()
     assert panel.join(60) and panel.records == want
 
