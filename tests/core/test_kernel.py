@@ -6,13 +6,13 @@ import math
 import fxref
 import numpy as np
 import pytest
+from fxcases import draw_network_and_plan
 from fxhand import B1, B2, W1, W2, hand_network
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import fxnet_widgets as fw
 from fxnet_widgets.core import kernel
-from fxnet_widgets.core.formats import ROUNDINGS
 
 
 def hand_net():
@@ -158,39 +158,7 @@ def test_safe_width_is_tight_by_corners():
 # --- against the slow reference -------------------------------------------------------
 @st.composite
 def net_plan_inputs(draw):
-    n_layers = draw(st.integers(1, 3))
-    bits = draw(st.integers(1, 10))
-    n_in = draw(st.integers(1, 4))
-    sizes = [n_in] + [draw(st.integers(1, 3)) for _ in range(n_layers)]
-    weight = st.floats(-8, 8, allow_nan=False, allow_infinity=False, width=64)
-    layers, plans = [], []
-    for li in range(n_layers):
-        act = draw(st.sampled_from(["sigmoid", "tanh", "relu", "identity"]))
-        w = [[draw(weight) for _ in range(sizes[li])] for _ in range(sizes[li + 1])]
-        b = [draw(st.floats(-4, 4, allow_nan=False, width=64)) for _ in range(sizes[li + 1])]
-        layers.append({"weights": w, "bias": b, "activation": act})
-        p = {
-            "weight_bits": draw(st.integers(2, 12)),
-            "weight_frac": draw(st.integers(-2, 8)),
-            "weight_round": draw(st.sampled_from(ROUNDINGS)),
-            "acc_bits": draw(st.integers(4, 24)),
-            "acc_overflow": draw(st.sampled_from(["wrap", "saturate"])),
-            "index_round": draw(st.sampled_from(ROUNDINGS)),
-            "table_round": draw(st.sampled_from(ROUNDINGS)),
-            "out_bits": draw(st.integers(2, 10)),
-        }
-        if act in ("sigmoid", "tanh"):
-            p["table_bits"] = draw(st.integers(2, 10))
-            p["table_frac"] = draw(st.integers(-2, 12))
-            p["table_sample"] = draw(st.sampled_from(["edge", "mid"]))
-        else:
-            p["out_frac"] = draw(st.integers(-3, 10))
-        plans.append(p)
-    doc = {
-        "input": {"bits": bits, "scale": draw(st.sampled_from(["pow2", "full"]))},
-        "layers": layers,
-        "output": {"threshold": draw(st.floats(-1, 1, width=64))},
-    }
+    doc, plans, bits, n_in = draw_network_and_plan(draw, max_bits=10)
     n = draw(st.integers(1, 12))
     codes = [[draw(st.integers(0, (1 << bits) - 1)) for _ in range(n_in)] for _ in range(n)]
     return doc, {"layers": plans}, codes
