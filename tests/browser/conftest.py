@@ -30,6 +30,7 @@ from typing import Any
 from urllib.parse import urlsplit
 
 import pytest
+from fxkernel import run_code
 from fxtools import missing
 
 CHROMIUM = Path(os.environ.get("FXNET_CHROMIUM", "/usr/bin/chromium"))
@@ -315,20 +316,7 @@ def _kernel_run(server: Server, code: str, path: str | None = None, timeout: flo
     kc.load_connection_file()
     kc.start_channels()
     try:
-        msg_id = kc.execute(code)
-        out = []
-        deadline = time.monotonic() + timeout
-        while time.monotonic() < deadline:
-            m = kc.get_iopub_msg(timeout=timeout)
-            if m["parent_header"].get("msg_id") != msg_id:
-                continue
-            if m["msg_type"] == "stream":
-                out.append(m["content"]["text"])
-            elif m["msg_type"] == "error":
-                raise AssertionError("\n".join(m["content"]["traceback"]))
-            elif m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
-                return "".join(out)
-        raise AssertionError(f"the kernel did not answer within {timeout:.0f} s")
+        return run_code(kc, code, timeout)
     finally:
         kc.stop_channels()
 

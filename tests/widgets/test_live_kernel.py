@@ -7,6 +7,7 @@ import textwrap
 from pathlib import Path
 
 import pytest
+from fxkernel import run_code
 
 jupyter_client = pytest.importorskip("jupyter_client")
 pytest.importorskip("ipykernel")
@@ -39,20 +40,7 @@ REPORT = (
 
 def _run(kc, code: str, seen: list | None = None) -> str:
     """Run ``code``; its stdout. Every other iopub message read meanwhile goes to ``seen``."""
-    msg_id = kc.execute(code)
-    out = []
-    while True:
-        m = kc.get_iopub_msg(timeout=60)
-        if m["parent_header"].get("msg_id") != msg_id:
-            if seen is not None:
-                seen.append(m)
-            continue
-        if m["msg_type"] == "stream":
-            out.append(m["content"]["text"])
-        elif m["msg_type"] == "error":
-            raise AssertionError("\n".join(m["content"]["traceback"]))
-        elif m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
-            return "".join(out)
+    return run_code(kc, code, 120, seen)
 
 
 def test_a_drag_in_a_live_kernel_is_coalesced_and_ends_on_the_last_value():
