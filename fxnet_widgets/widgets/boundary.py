@@ -28,7 +28,7 @@ from .page import PageIntSlider, from_page
 from .results import SLICES, SessionResult
 from .session import Session
 
-__all__ = ["SlicePlot", "BoundaryPanel", "CubePanel", "MODES"]
+__all__ = ["SlicePlot", "BoundaryPanel", "CubePanel", "MODES", "boundary_points"]
 
 #: what a slice shows: both decisions compared, or one of them
 MODES = ("fixed vs float", "fixed point", "float")
@@ -87,6 +87,25 @@ def _outline(rgb: Any) -> str:
     return "#000000" if (299 * r + 587 * g + 114 * b) // 1000 >= 128 else "#ffffff"
 
 
+def boundary_points(x: np.ndarray, y: np.ndarray, decisions: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Points on the edges between neighbouring grid cells whose decisions differ (a dotted outline).
+
+    ``decisions[iy, ix]`` is the class at (``x[ix]``, ``y[iy]``); each pair of
+    neighbours (along x, then along y) with different classes gives the point halfway between them.
+
+    >>> px, py = boundary_points(np.array([0, 2, 4]), np.array([0, 2]), np.array([[0, 0, 1], [0, 1, 1]]))
+    >>> px.tolist(), py.tolist()
+    ([3.0, 1.0, 2.0], [0.0, 2.0, 1.0])
+    """
+    d = np.asarray(decisions)
+    xf, yf = np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64)
+    iy, ix = np.nonzero(d[:, 1:] != d[:, :-1])
+    jy, jx = np.nonzero(d[1:, :] != d[:-1, :])
+    px = np.concatenate([(xf[ix] + xf[ix + 1]) / 2, xf[jx]])
+    py = np.concatenate([yf[iy], (yf[jy] + yf[jy + 1]) / 2])
+    return px, py
+
+
 class SlicePlot(w.VBox):
     """One slice of the input cube as a canvas heat map, with its position slider.
 
@@ -110,6 +129,9 @@ class SlicePlot(w.VBox):
         (or, without labels, that fixed-point decision): one marker shape per
         class, filled with the class colour and outlined in black or white,
         whichever contrasts with the fill.
+    outline : bqplot.Scatter
+        Small dark dots on another network's fixed-point boundary (see :meth:`set_outline`;
+        empty unless the explorer's refine panel has a second network to show).
     position : ipywidgets.IntSlider
         The third input's code (linked to the session's slice trait).
     """
@@ -149,11 +171,14 @@ class SlicePlot(w.VBox):
             )
             for k, col in enumerate(class_colours(n_cls))
         ]  # fmt: skip
+        self.outline = bq.Scatter(x=np.zeros(0, np.float32), y=np.zeros(0, np.float32),
+                                  scales={"x": self.xs, "y": self.ys}, colors=["#111111"], default_size=5,
+                                  marker="circle", opacities=[0.9])  # fmt: skip
         ticks = np.array([0, hi * 0.25, hi * 0.5, hi * 0.75, hi], dtype=np.float32).round()
         ax_x = bq.Axis(scale=self.xs, label=names[xi], tick_values=ticks, tick_format="d")
         ax_y = bq.Axis(scale=self.ys, label=names[yi], side="left", tick_values=ticks, tick_format="d")
         self.figure = bq.Figure(
-            marks=[self.heatmap, *self.points], axes=[ax_x, ax_y], title=name,
+            marks=[self.heatmap, self.outline, *self.points], axes=[ax_x, ax_y], title=name,
             fig_margin={"top": 30, "bottom": 40, "left": 45, "right": 10},
             layout=w.Layout(width=f"{size}px", height=f"{size}px"), padding_x=0, padding_y=0,
         )  # fmt: skip
@@ -179,6 +204,12 @@ class SlicePlot(w.VBox):
         ctx = self.session.deferred() if from_page(self.position) else contextlib.nullcontext()
         with ctx:
             setattr(self.session, self._trait, change["new"])
+
+    def set_outline(self, x: np.ndarray, y: np.ndarray) -> None:
+        """Draw the dotted outline at points (``x``, ``y``) (empty arrays: none)."""
+        with self.outline.hold_sync():
+            self.outline.x = np.asarray(x, dtype=np.float32)
+            self.outline.y = np.asarray(y, dtype=np.float32)
 
     def values(self, result: SessionResult) -> np.ndarray:
         """The array this plot shows for ``result`` (uint8; see ``mode``)."""
@@ -223,8 +254,26 @@ class BoundaryPanel(w.VBox):
         for sp in self.slices:
             t.link((self.mode, "value"), (sp, "mode"))
         self.legend = w.HTML(_legend(tuple(session.network.classes)))
+        #: what the dotted outline on the slices is ("" while there is none)
+        self.outline_note = w.HTML("")
         row = w.HBox(self.slices, layout=w.Layout(flex_flow="row wrap", align_items="flex-start"))
-        super().__init__([self.mode, self.legend, row], **kwargs)
+        super().__init__([self.mode, self.legend, self.outline_note, row], **kwargs)
+
+    def show_outline(self, decisions: Any, note: str) -> None:
+        """Outline, per slice, the boundary of ``decisions[i]`` (fixed-point classes on slice i's grid).
+
+        ``decisions`` None clears the outline; ``note`` says what it is (shown above the slices).
+        """
+        for i, sp in enumerate(self.slices):
+            if decisions is None:
+                sp.set_outline(np.zeros(0), np.zeros(0))
+            else:
+                c = self.session.slice_codes
+                sp.set_outline(*boundary_points(c, c, decisions[i]))
+        text = (f"<span style='font-size:12px'><span style='display:inline-block;width:6px;height:6px;"
+                f"border-radius:3px;background:#111;margin-right:6px;vertical-align:middle'></span>"
+                f"{html.escape(note)}</span>") if decisions is not None and note else ""  # fmt: skip
+        self.outline_note.value = text
 
 
 def cube_class_tiles(fixed: np.ndarray, levels: int = 4) -> np.ndarray:

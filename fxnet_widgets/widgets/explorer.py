@@ -22,6 +22,7 @@ from .controls import PlanControlsPanel
 from .events import EventsPlot, HistogramsPanel
 from .metrics import MetricsPanel
 from .preview import PreviewPanel
+from .refining import RefinePanel
 from .session import Session
 from .status import StatusLinePanel
 
@@ -102,6 +103,9 @@ class Explorer(w.VBox):
             self.preview = PreviewPanel(s)
             parts.append(("image", self.preview))
         parts.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
+        # made after the slices: its view runs after theirs and draws the other network's outline on them
+        self.refining = RefinePanel(s, self.boundary)
+        parts.insert(1 if s.cube_ok else 0, ("refine: better integers for this plan", self.refining))
         # titled sections, all shown at once: a figure in a hidden tab is drawn at zero size (bqplot
         # then logs negative <rect> sizes), and a report embeds the widgets with no kernel to redraw them
         self.sections: dict[str, w.VBox] = {title: _section(title, body) for title, body in parts}

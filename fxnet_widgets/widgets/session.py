@@ -51,7 +51,7 @@ from ..core.network import Network
 from ..core.plan import Plan
 from ..core.starting import starting_plan, suggest_plan
 from ..render.raster import MAX_PREVIEW_WIDTH
-from . import parts
+from . import parts, swap
 from .binning import BinCounter, neuron_results
 from .data import SessionData
 from .results import SessionResult, layer_kind
@@ -408,6 +408,9 @@ class Session(t.HasTraits):
             figures=figures, cost=cost, layer_safe_acc_bits=safe,
             kinds=tuple(layer_kind(L.activation) for L in net.layers),
         )  # fmt: skip
+
+    #: ``session.use_network(net)``: compute with ``net`` from now on (same layout; :func:`.swap.use_network`)
+    use_network = swap.use_network
 
     def refresh(self) -> None:
         """Recompute and redraw every view (e.g. after a view was fixed)."""
