@@ -75,6 +75,7 @@ class PreviewPanel(w.VBox):
             + difference_legend_html(classes) + "</div></div>"
         )  # fmt: skip
         self._codes: Any = None
+        self._digest = ""
         self._background: Any = None
         self._last: Any = None
         wrap = {"flex_flow": "row wrap", "align_items": "flex-start"}
@@ -90,9 +91,9 @@ class PreviewPanel(w.VBox):
             return
         self._last = im
         n = result.n_classes
-        # the float decisions depend on the codes only; the session keeps each codes array alive
-        if im.codes is not self._codes:
-            self._codes = im.codes
+        # the float decisions depend on the codes and the network only; the session keeps each codes array alive
+        if im.codes is not self._codes or self.session.network.digest != self._digest:
+            self._codes, self._digest = im.codes, self.session.network.digest
             self.input_image.value = png_bytes(im.codes)
             self.float_image.value = decision_mask_png(im.float_, n)
             self._background = overlay_background(im.codes)

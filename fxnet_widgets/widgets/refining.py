@@ -27,6 +27,7 @@ from typing import Any
 import ipywidgets as w
 import numpy as np
 
+from ..core.kernel import emulate
 from ..core.network import Network, as_codes
 from ..core.plan import Plan
 from ..core.refine import METHODS, Refinement, refine
@@ -64,12 +65,24 @@ def refine_codes(session: Any, codes: Any = None, pixels: int = 20_000, seed: in
     return grid, f"the {grid.shape[0]} points of the cube grid"
 
 
-def _line(r: Refinement) -> str:
+def whole_image(plain: Network, refined: Network, plan: Plan, image: np.ndarray) -> tuple[int, int, int]:
+    """(plain, refined, pixels): decisions on every pixel of ``image`` that differ from ``plain``'s float pass."""
+    ref = emulate(plain, plan, image)
+    want = np.asarray(ref.float_decisions)
+    got = np.asarray(emulate(refined, plan, image).decisions)
+    return int(np.count_nonzero(np.asarray(ref.decisions) != want)), int(np.count_nonzero(got != want)), want.size
+
+
+def _line(r: Refinement, image: tuple[int, int, int] | None, drawn: int) -> str:
     b, a = r.before, r.after
-    return (f"disagreement with the float network, plain rounding -> refined: {b.errors} -> {a.errors} of "
-            f"{b.samples} refined on" + ("" if b.holdout_errors is None else
-                                         f"; {b.holdout_errors} -> {a.holdout_errors} of {b.holdout_samples} "
-                                         "held out"))  # fmt: skip
+    text = (f"disagreement with the float network, plain rounding -> refined: {b.errors} -> {a.errors} of "
+            f"{b.samples} refined on")  # fmt: skip
+    if b.holdout_errors is not None:
+        text += f"; {b.holdout_errors} -> {a.holdout_errors} of {b.holdout_samples} held out"
+    if image is not None:
+        where = "all of them refined on or held out" if drawn >= image[2] else f"{drawn} of them drawn"
+        text += f"; {image[0]} -> {image[1]} of the image's {image[2]} pixels ({where})"
+    return text
 
 
 class RefinePanel(w.VBox):
@@ -96,6 +109,10 @@ class RefinePanel(w.VBox):
         #: the network plain rounding starts from (the session's when the panel was made)
         self.plain: Network = session.network
         self.codes, self.data_note = refine_codes(session, codes, pixels, seed)
+        #: (plain, refined, pixels) disagreement on the whole image for the last refinement (None: no image)
+        self.image_figures: tuple[int, int, int] | None = None
+        self._from_image = codes is None and session.image is not None
+        self._next_image: tuple[int, int, int] | None = None
         self.seed, self.holdout_fraction, self.options = seed, holdout_fraction, dict(options)
         self.method = w.ToggleButtons(options=list(METHODS), value="rounding", description="method",
                                       style={"button_width": "80px", "description_width": "50px"})  # fmt: skip
@@ -106,6 +123,8 @@ class RefinePanel(w.VBox):
                                    description="network", disabled=True,
                                    style={"button_width": "110px", "description_width": "50px"})  # fmt: skip
         self.line = w.HTML("")
+        #: the before/after line as plain text ("" before the first refinement)
+        self.text = ""
         self.status = w.HTML("")
         self.note = w.HTML("")
         self.run_button.on_click(lambda _b: self._clicked())
@@ -189,10 +208,14 @@ class RefinePanel(w.VBox):
 
     def _work(self, plan: Plan, method: str, loop: asyncio.AbstractEventLoop | None) -> None:
         outcome: Refinement | None = None
+        self._next_image: tuple[int, int, int] | None = None
         try:
             outcome = refine(self.plain, plan, self.codes, method=method, seed=self.seed,
                              holdout_fraction=self.holdout_fraction, progress=self._progress,
                              stop=self._stop.is_set, **self.options)  # fmt: skip
+            image = self.session.image
+            if image is not None and not self._stop.is_set():
+                self._next_image = whole_image(self.plain, outcome.network, plan, image)
         except Exception as exc:  # a failing run shows on the panel and changes nothing
             msg = str(exc).splitlines()[0] if str(exc) else ""
             self.error = f"{type(exc).__name__}: {msg}"
@@ -208,7 +231,7 @@ class RefinePanel(w.VBox):
             elif self._stop.is_set() or outcome is None:
                 self._show_status("stopped: nothing changed, the plain network stays")
             else:
-                self.refinement = outcome
+                self.refinement, self.image_figures = outcome, self._next_image
                 if outcome.plan != self.session.plan:
                     self._show_status("refined for a plan that has changed since: not swapped in")
                     self._update_use()
@@ -232,7 +255,7 @@ class RefinePanel(w.VBox):
         net = self.refinement.network if which == "refined" and self.refinement is not None else self.plain
         if which == "refined" and self.refinement is not None:
             self._show_status(f"showing the refined network ({self.refinement.method})")
-        else:
+        elif not self.stale:
             self._show_status("showing plain rounding of the float weights")
         self.session.use_network(net)
         self._update_text()
@@ -246,14 +269,17 @@ class RefinePanel(w.VBox):
         r = self.refinement
         self._update_use()
         if r is None:
-            self.line.value = self.note.value = ""
+            self.line.value = self.note.value = self.text = ""
             return
         head = f"<b>{html.escape(r.method)}</b>, for plan {html.escape(self._plan_text(r.plan))}: "
         if self.stale:
             head = ("<span style='color:#b00020'><b>stale</b>: computed for an earlier plan, not the one shown; "
                     "the views show plain rounding (press 're-run for this plan')</span><br>" + head)  # fmt: skip
         more = "" if r.improved else " (no gain: plain rounding's integers kept)"
-        self.line.value = f"<span style='font-size:12px'>{head}{html.escape(_line(r) + more)}</span>"
+        drawn = self.codes.shape[0] if self._from_image else 0
+        text = _line(r, self.image_figures, drawn) + more
+        self.text = ("stale (computed for an earlier plan): " if self.stale else "") + text
+        self.line.value = f"<span style='font-size:12px'>{head}{html.escape(text)}</span>"
         self.note.value = (
             "<span style='font-size:12px'>the other views run the refined network: their 'float' is its own "
             "float pass (weights exact under the plan); the line above compares with the original float "
@@ -297,4 +323,8 @@ class RefinePanel(w.VBox):
         if r is None:
             return "refine: not run (plain rounding)"
         state = "stale (computed for an earlier plan)" if self.stale else f"showing {self.shown}"
-        return f"refine: {state}\n{r.summary()}"
+        text = f"refine: {state}\n{r.summary()}"
+        im = self.image_figures
+        if im is not None:
+            text += f"\n  whole image: plain {im[0]}, refined {im[1]} of {im[2]} pixels differ from the float network"
+        return text
