@@ -105,7 +105,7 @@ class Explorer(w.VBox):
         parts.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
         # made after the slices: its view runs after theirs and draws the other network's outline on them
         self.refining = RefinePanel(s, self.boundary)
-        parts.insert(1 if s.cube_ok else 0, ("refine: better integers for this plan", self.refining))
+        parts.insert(1 if s.cube_ok else 0, ("refine", self.refining))
         # titled sections, all shown at once: a figure in a hidden tab is drawn at zero size (bqplot
         # then logs negative <rect> sizes), and a report embeds the widgets with no kernel to redraw them
         self.sections: dict[str, w.VBox] = {title: _section(title, body) for title, body in parts}
