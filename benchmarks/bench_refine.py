@@ -59,21 +59,21 @@ def part_demo(net: Network, plan: Plan, scene: np.ndarray, test: np.ndarray) -> 
     cube = np.random.default_rng(1).integers(0, 256, (20_000, 3))
     print(f"   {'plan (layer-1 / layer-2 weights)':33s} {'data':6s} {'method':9s} {'refined-on':>17s} "
           f"{'held out':>15s} "
-          f"{'test scene':>15s} {'time':>7s}")
+          f"{'test scene':>15s} {'wall':>7s} {'cpu':>7s} {'load':>5s}")
     for w1, f1, w2, f2 in ((6, 1, 5, 2), (5, 0, 4, 1), (5, 1, 4, 1)):
         p = narrow(plan, w1, f1, w2, f2)
         plain = disagreement(net, net, p, test)
         for data, method in itertools.product(("scene", "cube"), ("rounding", "finetune", "both")):
             sample = scene if data == "scene" else cube
-            t0 = time.perf_counter()
+            t0, c0 = time.perf_counter(), time.process_time()
             r = refine(net, p, sample, method=method)
-            dt = time.perf_counter() - t0
+            dt, dc = time.perf_counter() - t0, time.process_time() - c0
             after = disagreement(net, r.network, p, test)
             b, a = r.before, r.after
             print(f"   Q{w1 - f1 - 1}.{f1} ({w1} b) / Q{w2 - f2 - 1}.{f2} ({w2} b){'':4s} {data:6s} {method:9s} "
                   f"{b.errors:6d} -> {a.errors:6d}  {b.holdout_errors:5d} -> {a.holdout_errors:5d}  "
-                  f"{plain:5d} -> {after:5d}  {dt:5.2f} s")
-    print("   targets: rounding <= 5 s, fine-tuning <= 30 s on 20,000 pixels")
+                  f"{plain:5d} -> {after:5d}  {dt:5.2f} s {dc:5.2f} s {os.getloadavg()[0]:5.2f}")
+    print("   targets: rounding <= 5 s, fine-tuning <= 30 s on 20,000 pixels (wall; cpu = this process's CPU time)")
 
 
 _MOVES = ("weight_lsb", "weight_msb", "acc_msb", "table_lsb", "table_msb", "out_lsb")
