@@ -157,6 +157,37 @@ def test_integer_pass_agrees_with_the_kernel_after_random_changes(demo):
         assert np.array_equal(counts, e.decisions)
 
 
+def test_energy_is_the_kernels_errors_and_distances(demo):
+    # the search's objective, recounted from emulate's output codes: errors, then the wrong samples'
+    # distance (in output codes) from the threshold over (code span x samples + 1)
+    net, plan, codes, _ = demo
+    p = narrow(plan, 5, 0, 4, 1)
+    sub = codes[:4000]
+    intnet = build_integer_network(net, p)
+    target = emulate(net, p, sub).float_decisions.astype(np.int64)
+    samples = Samples(sub, target)
+    ip = IntegerPass(intnet, samples, [L.q_w for L in intnet.layers], [L.q_b for L in intnet.layers])
+    last = intnet.layers[-1]
+    thr, span = intnet.threshold_code, last.code_max - last.code_min + 1
+    rng = np.random.default_rng(4)
+    for _ in range(12):
+        li = int(rng.integers(2))
+        j = int(rng.integers(ip.q_w[li].shape[0]))
+        i = int(rng.integers(ip.q_w[li].shape[1] + 1))
+        lp = p.layers[li]
+        bits = lp.weight_bits if i < ip.q_w[li].shape[1] else lp.acc_bits
+        now = int(ip.q_w[li][j, i] if i < ip.q_w[li].shape[1] else ip.q_b[li][j])
+        # stay inside the two's-complement range (outside it the plan would clip the exact network)
+        ip.set(li, j, i, min(max(now + int(rng.integers(-2, 3)), -(1 << (bits - 1))), (1 << (bits - 1)) - 1))
+        energy, errors = ip.energy()
+        e = emulate(exact_network(net, intnet, ip.q_w, ip.q_b), p, sub)
+        out = e.out_codes.reshape(-1).astype(np.int64)
+        wrong = e.decisions != target
+        dist = np.where(target == 1, thr - out, out - thr + 1)[wrong]
+        assert errors == int(wrong.sum())
+        assert energy == (0.0 if not errors else errors + int(dist.sum()) / (span * sub.shape[0] + 1.0))
+
+
 def _objective(n_out, p, rng):
     t = rng.uniform(0.05, 0.95, (n_out, p))
     if n_out > 1:

@@ -81,15 +81,18 @@ class IntegerPass:
         self._dirty: dict[int, set[int]] = {}
         last = self.layers[-1]
         self._span = float(last.code_max - last.code_min + 1)
-        self._cost: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+        self._cost: tuple[np.ndarray, np.ndarray, int] | None = None
         if last.n_out == 1 and self.threshold_code is not None and samples.target.size:
-            # per (target, code), flattened: is it an error, and how far from the right decision
+            # per (target, code), flattened: is it an error, and how far from the right decision, as one
+            # integer error * M + distance: M exceeds any sum of distances, so one dot product gives both
             c = np.arange(last.code_min, last.code_max + 1, dtype=np.int64)
             thr = self.threshold_code
             wrong = np.concatenate([c >= thr, c < thr]).astype(np.int64)
             dist = np.concatenate([c - thr + 1, thr - c]) * wrong
             offset = samples.target * c.shape[0] - last.code_min
-            self._cost = (wrong, dist, offset)
+            m = int(dist.max(initial=0)) * samples.total + 1
+            if m * (samples.total + 1) < 1 << 62:  # no int64 overflow in the dot product (else: the general path)
+                self._cost = (wrong * m + dist, offset, m)
 
     # -- evaluation ---------------------------------------------------------------
     def _sums(self, li: int) -> np.ndarray:
@@ -179,12 +182,11 @@ class IntegerPass:
         target = self.samples.target
         counts = self.samples.counts
         if self._cost is not None:
-            wrong_t, dist_t, offset = self._cost
-            idx = offset + codes[0]
-            errors = int(np.dot(counts, wrong_t.take(idx)))
+            cost_t, offset, m = self._cost
+            errors, dist = divmod(int(np.dot(counts, cost_t.take(offset + codes[0]))), m)
             if not errors:
                 return 0.0, 0
-            return errors + int(np.dot(counts, dist_t.take(idx))) / (self._span * self.samples.total + 1.0), errors
+            return errors + dist / (self._span * self.samples.total + 1.0), errors
         dec = decisions_from_codes(codes, self.threshold_code)
         wrong = dec != target
         errors = int(counts[wrong].sum())
