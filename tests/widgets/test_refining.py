@@ -153,7 +153,8 @@ def test_plan_change_marks_the_refinement_stale(explorer, fruit_net):
     # the refined weights are exact only under the old plan: the views go back to plain rounding
     assert panel.stale and panel.shown == "plain" and ex.session.network is fruit_net
     assert_explorer_matches_kernel(ex)
-    assert panel.text.startswith("stale (computed for an earlier plan): ") and panel.run_button.description == "re-run for this plan"
+    assert panel.text.startswith("stale (computed for an earlier plan): ")
+    assert panel.run_button.description == "re-run for this plan"
     assert panel.use.disabled and all(len(sp.outline.x) == 0 for sp in ex.boundary.slices)
     assert ex.boundary.outline_note.value == ""
     assert panel.summary().startswith("refine: stale (computed for an earlier plan)")
