@@ -201,3 +201,54 @@ def test_refine_panel_bad_pixels(fruit_net, belt_image):
 
     with pytest.raises(ValueError, match=r"^pixels must be an integer of at least 2, not 1$"):
         RefinePanel(Session(fruit_net, image=belt_image), pixels=1)
+
+
+def test_the_button_in_a_live_kernel_swaps_on_the_kernel_thread():
+    """A click as the page sends it: refine runs in a worker, the swap happens on the kernel's own thread."""
+    import json
+    import textwrap
+    from pathlib import Path
+
+    jupyter_client = pytest.importorskip("jupyter_client")
+    pytest.importorskip("ipykernel")
+    from fxkernel import run_code
+
+    root = Path(__file__).resolve().parents[2]
+    setup = textwrap.dedent(f"""
+        import sys, json, threading, asyncio
+        sys.path.insert(0, {str(root)!r})
+        import numpy as np
+        from fxnet_widgets.core.network import Network
+        from fxnet_widgets.core.plan import Plan
+        from fxnet_widgets.widgets import Explorer
+        net = Network.from_layers([([[9.2, -12.4, -2.9], [8.9, -11.6, -3.2], [-9.4, 12.8, 2.8]],
+                                    [-0.36, -0.36, 0.4], "sigmoid"), ([[6.1, 5.7, -6.3]], [-2.9], "sigmoid")])
+        plan = Plan.uniform(net, weight_bits=4, weight_frac=0, acc_bits=18, out_bits=8, table_bits=12, table_frac=8)
+        img = np.random.default_rng(0).integers(0, 256, (60, 80, 3)).astype(np.uint8)
+        ex = Explorer(net, image=img, plan=plan)
+        threads = []
+        plain_use = ex.session.use_network
+        ex.session.use_network = lambda n: (threads.append(threading.current_thread().name), plain_use(n))
+        print(json.dumps({{"button": ex.refining.run_button.model_id}}))
+        """)
+    report = textwrap.dedent("""
+        for _ in range(600):  # give the kernel's loop the turn the worker's swap was posted to
+            if not ex.refining.running:
+                break
+            await asyncio.sleep(0.05)
+        r = ex.refining.refinement
+        print(json.dumps({"threads": threads, "main": threading.main_thread().name, "shown": ex.refining.shown,
+                          "swapped": r is not None and ex.session.network is r.network, "error": ex.refining.error,
+                          "plan": r is not None and r.plan == ex.session.result.plan}))
+        """)
+    km, kc = jupyter_client.manager.start_new_kernel(kernel_name="python3")
+    try:
+        ids = json.loads(run_code(kc, setup, 120).strip().splitlines()[-1])
+        click = {"method": "custom", "content": {"event": "click"}}  # what the page sends for a button press
+        kc.shell_channel.send(kc.session.msg("comm_msg", {"comm_id": ids["button"], "data": click}))
+        end = json.loads(run_code(kc, report, 120).strip().splitlines()[-1])
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)
+    assert end["error"] == "" and end["swapped"] and end["plan"] and end["shown"] == "refined"
+    assert end["threads"] == [end["main"]]
