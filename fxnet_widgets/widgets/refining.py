@@ -232,7 +232,11 @@ class RefinePanel(w.VBox):
                 self._show_status("stopped: nothing changed, the plain network stays")
             else:
                 self.refinement, self.image_figures = outcome, self._next_image
-                if outcome.plan != self.session.plan:
+                if not outcome.improved:  # the same integers: swapping would change only the views' float pass
+                    self._show_status("no gain over plain rounding for this plan: nothing swapped in")
+                    if self.use.value == "refined":
+                        self.use.value = "plain"
+                elif outcome.plan != self.session.plan:
                     self._show_status("refined for a plan that has changed since: not swapped in")
                     self._update_use()
                 elif self.use.value == "refined":
@@ -246,7 +250,7 @@ class RefinePanel(w.VBox):
 
     # -- which network ----------------------------------------------------------------------
     def _toggled(self, change: Any) -> None:
-        if change["new"] == "refined" and (self.refinement is None or self.stale):
+        if change["new"] == "refined" and (self.refinement is None or not self.refinement.improved or self.stale):
             self.use.value = "plain"  # nothing valid to show (the toggle is disabled then)
             return
         self._swap(change["new"])
@@ -261,7 +265,7 @@ class RefinePanel(w.VBox):
         self._update_text()
 
     def _update_use(self) -> None:
-        ok = self.refinement is not None and not self.stale
+        ok = self.refinement is not None and self.refinement.improved and not self.stale
         self.use.disabled = not ok
         self.run_button.description = "re-run for this plan" if self.stale else "refine"
 

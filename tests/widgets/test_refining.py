@@ -252,3 +252,17 @@ def test_the_button_in_a_live_kernel_swaps_on_the_kernel_thread():
         km.shutdown_kernel(now=True)
     assert end["error"] == "" and end["swapped"] and end["plan"] and end["shown"] == "refined"
     assert end["threads"] == [end["main"]]
+
+
+def test_no_gain_swaps_nothing(fruit_net, belt_image):
+    ex = Explorer(fruit_net, image=belt_image)  # the suggested plan: plain rounding already agrees everywhere
+    before = emulate(fruit_net, ex.plan, belt_image)
+    assert np.count_nonzero(before.decisions != before.float_decisions) == 0
+    ex.refining.run(wait=True)
+    r = ex.refining.refinement
+    assert not r.improved and r.after.errors == r.before.errors == 0
+    assert ex.session.network is fruit_net and ex.refining.shown == "plain" and ex.refining.use.disabled
+    assert "no gain over plain rounding for this plan: nothing swapped in" in ex.refining.status.value
+    assert "(no gain: plain rounding's integers kept)" in ex.refining.text
+    ex.refining.use.value = "refined"  # refused
+    assert ex.session.network is fruit_net
