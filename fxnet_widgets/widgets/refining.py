@@ -319,7 +319,9 @@ class RefinePanel(w.VBox):
         colours = None if data.samples is None else np.zeros(data.samples.shape[0], np.int64)  # points unused
         got = slices_part(data, result.plan, (pos[0], pos[1], pos[2]), colours)
         self.outline = tuple(sl.fixed for sl in got)
-        self.boundary.show_outline(self.outline, f"dots: where the fixed-point decision of {name} changes")
+        shown = ("; the heat map: the refined network, against its own float pass" if self.shown == "refined"
+                 else "")  # fmt: skip
+        self.boundary.show_outline(self.outline, f"dots: where the fixed-point decision of {name} changes{shown}")
 
     def summary(self) -> str:
         """Deterministic text (no timing): what is shown, and the refinement's figures."""
