@@ -308,7 +308,7 @@ class RefinePanel(w.VBox):
         self._update_text()
         if self.boundary is None or result.slices is None:
             return
-        if r is None or result.plan != r.plan:
+        if r is None or result.plan != r.plan or not r.improved:  # (no gain: the same integers, the same boundary)
             self.outline = None
             self.boundary.show_outline(None, "")
             return

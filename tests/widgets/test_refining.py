@@ -266,3 +266,4 @@ def test_no_gain_swaps_nothing(fruit_net, belt_image):
     assert "(no gain: plain rounding's integers kept)" in ex.refining.text
     ex.refining.use.value = "refined"  # refused
     assert ex.session.network is fruit_net
+    assert ex.refining.outline is None and all(len(sp.outline.x) == 0 for sp in ex.boundary.slices)
