@@ -145,6 +145,7 @@ class RefinePanel(w.VBox):
         self._running = False
         #: per slice, the fixed-point decisions the dotted outline is drawn from (None: no outline)
         self.outline: tuple[np.ndarray, ...] | None = None
+        self._outline_key: Any = None
         self._show_status("plain rounding of the float weights (press refine to search for better integers)")
         session.add_view("refine", self._follow)
 
@@ -316,9 +317,11 @@ class RefinePanel(w.VBox):
         data = copy.copy(self.session.data)
         data.network = other
         pos = tuple(sl.position for sl in sorted(result.slices, key=lambda s: s.fixed_input))
-        colours = None if data.samples is None else np.zeros(data.samples.shape[0], np.int64)  # points unused
-        got = slices_part(data, result.plan, (pos[0], pos[1], pos[2]), colours)
-        self.outline = tuple(sl.fixed for sl in got)
+        key = (other.digest, result.plan, pos)
+        if key != self._outline_key or self.outline is None:  # e.g. a full-resolution toggle: the same slices
+            colours = None if data.samples is None else np.zeros(data.samples.shape[0], np.int64)  # points unused
+            got = slices_part(data, result.plan, (pos[0], pos[1], pos[2]), colours)
+            self.outline, self._outline_key = tuple(sl.fixed for sl in got), key
         shown = ("; the heat map: the refined network, against its own float pass" if self.shown == "refined"
                  else "")  # fmt: skip
         self.boundary.show_outline(self.outline, f"dots: where the fixed-point decision of {name} changes{shown}")
