@@ -165,8 +165,9 @@ class Explorer(w.VBox):
         return ComparePanel(self, plan_a=plan_a, plan_b=plan_b)
 
     def summary(self) -> str:
-        """Deterministic text of what the views show (for notebooks and reports)."""
-        return self.session.summary() + "\nstatus: " + self.status.text
+        """Deterministic text of what the views show (for notebooks and reports); with a refinement, its state."""
+        refined = "" if self.refining.refinement is None else "\n" + self.refining.summary()
+        return self.session.summary() + "\nstatus: " + self.status.text + refined
 
     def save_report(
         self, path: str | Path, *, offline_bundles: str | Path | None = None, title: str | None = None

@@ -79,6 +79,7 @@ def test_click_refine_swaps_in_the_refined_network(explorer, fruit_net):
     assert html.escape(panel.text) in panel.line.value
     assert panel.summary().startswith("refine: showing refined\nrefine (rounding, against the float decisions):")
     assert "their 'float' is its own float pass" in panel.note.value
+    assert ex.summary().endswith("\n" + panel.summary())  # the explorer's text says which network it shows
 
 
 def test_slices_carry_both_boundaries(explorer, fruit_net):
