@@ -88,6 +88,7 @@ class Explorer(w.VBox):
         s = self.session
         self.status = StatusLinePanel(s)
         self.controls = PlanControlsPanel(s)
+        #: "metrics and cost": the figures at a glance, every figure under its collapsed "details"
         self.metrics = MetricsPanel(s, layout=w.Layout(width="560px", flex="0 1 auto"))
         self.events = EventsPlot(s)
         self.histograms = HistogramsPanel(s)

@@ -114,12 +114,12 @@ def stale_note(session: Any, result: SessionResult | None) -> str:
     """Why the figures shown are not those of the session's plan ("" when they are)."""
     if result is None:
         return "pending: nothing computed yet"
+    if result.plan == session.plan:
+        return ""
     if session.error:
         return (f"error: {session.error}; the figures below are of the last plan that worked "
                 f"({plan_widths(result.plan)})")  # fmt: skip
-    if result.plan != session.plan:
-        return f"pending: the figures below are of the previous plan ({plan_widths(result.plan)}), not the sliders'"
-    return ""
+    return f"pending: the figures below are of the previous plan ({plan_widths(result.plan)}), not the sliders'"
 
 
 class MetricsGlancePanel(w.HTML):

@@ -178,8 +178,9 @@ class MetricsPanel(w.VBox):
     ----------
     glance : MetricsGlancePanel or None
         The figures at a glance (its ``text`` and ``note``: see the class).
-    details : ipywidgets.Accordion
-        The collapsed area holding :attr:`html` (open it with ``details.selected_index = 0``).
+    details : ipywidgets.VBox
+        The "details" area: :attr:`details_button` and :attr:`html`, shown while the button is down
+        (collapsed at first; ``details_button.value = True`` opens it).
     rows : list of Row
         Every figure (:func:`metrics_rows`), the table in :attr:`html`.
     text : str
@@ -195,14 +196,22 @@ class MetricsPanel(w.VBox):
         self.text = ""
         self.glance = MetricsGlancePanel(session, details=False) if glance else None
         title = w.HTML("<b>metrics and cost</b>")
-        self.details: w.Accordion | None = None
-        if self.glance is None:
-            super().__init__([title, self.html], **kwargs)
-        else:
-            self.details = w.Accordion(children=[self.html], titles=("details: every figure",), selected_index=None)
-            super().__init__([title, self.glance, self.details], **kwargs)
+        #: shows or hides :attr:`html` (every figure); collapsed at first beside the glance. No accordion: the explorer has
+        #: no hidden pages (a figure in one is drawn at zero size)
+        self.details_button = w.ToggleButton(value=not glance, description="details: every figure", icon="chevron-right",
+                                             layout=w.Layout(width="auto"))  # fmt: skip
+        self.details_button.observe(lambda _c: self._fold(), names="value")
+        self.details = w.VBox([self.details_button, self.html])
+        self._fold()
+        top = [title] if self.glance is None else [title, self.glance]
+        super().__init__([*top, self.details], **kwargs)
         self.add_class("fxnet-metrics")
         session.add_view("metrics", self._draw)
+
+    def _fold(self) -> None:
+        shown = bool(self.details_button.value)
+        self.html.layout.display = "" if shown else "none"
+        self.details_button.icon = "chevron-down" if shown else "chevron-right"
 
     def summary(self) -> str:
         """Every figure as deterministic text (:attr:`text`, what "details" shows)."""
