@@ -197,6 +197,10 @@ def report_html(
     page_title = title if title is not None else f"fxnet report: {shape} network"
     bundles: Bundles = _offline_bundles(offline_bundles) if offline_bundles is not None else cdn_bundles()
     static = static_sections(session, summary if summary is not None else session.summary())
+    if widget is not None:  # the explorer's last sweep (scatter, front) and pinned A/B comparison, when it has them
+        from ._search import extra_sections
+
+        static = "\n".join(p for p in (static, extra_sections(widget)) if p)
     manager_state, views = embedded_state(widget) if widget is not None else ({}, [])
     view_html = "\n".join(_json_script(v, WIDGET_VIEW_MIME) for v in views)
     mode = ("offline: every script is inlined in this file" if bundles.offline
