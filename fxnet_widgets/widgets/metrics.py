@@ -196,10 +196,10 @@ class MetricsPanel(w.VBox):
         self.text = ""
         self.glance = MetricsGlancePanel(session, details=False) if glance else None
         title = w.HTML("<b>metrics and cost</b>")
-        #: shows or hides :attr:`html` (every figure); collapsed at first beside the glance. No accordion: the explorer has
-        #: no hidden pages (a figure in one is drawn at zero size)
-        self.details_button = w.ToggleButton(value=not glance, description="details: every figure", icon="chevron-right",
-                                             layout=w.Layout(width="auto"))  # fmt: skip
+        #: shows or hides :attr:`html` (every figure); collapsed at first beside the glance. No accordion:
+        #: the explorer has no hidden pages (a figure in one is drawn at zero size)
+        self.details_button = w.ToggleButton(value=not glance, description="details: every figure",
+                                             icon="chevron-right", layout=w.Layout(width="auto"))  # fmt: skip
         self.details_button.observe(lambda _c: self._fold(), names="value")
         self.details = w.VBox([self.details_button, self.html])
         self._fold()
