@@ -63,9 +63,9 @@ def grid_html(title: str, names: Sequence[str], cells: Sequence[Sequence[int]], 
             shade = f"color:{ink};background:rgba({rgb},{alpha:.2f})"
             tds.append(f"<td style='{_CELL};text-align:right;{shade}'>{v}</td>")
         rows.append(f"<tr><th style='{_CELL};text-align:left'>{html.escape(names[i])}</th>{''.join(tds)}</tr>")
-    return (f"<table class='{cls}' style='border-collapse:collapse;margin:2px 0'><caption style='{_CELL};"
-            f"text-align:left;color:#555'>{html.escape(title)}</caption><thead><tr><th></th>{head}</tr></thead>"
-            f"<tbody>{''.join(rows)}</tbody></table>")  # fmt: skip
+    return (f"<div style='margin:2px 0'><div style='{_CELL};color:#555;white-space:nowrap'>{html.escape(title)}"
+            f"</div><table class='{cls}' style='border-collapse:collapse'><thead><tr><th></th>{head}</tr></thead>"
+            f"<tbody>{''.join(rows)}</tbody></table></div>")  # fmt: skip
 
 
 def shown_kinds(result: SessionResult) -> list[str]:
@@ -149,6 +149,7 @@ class MetricsGlancePanel(w.HTML):
             m = f.metrics
             agree = 1 - m.mismatch_fraction
             line = f"{f.name}: agree with float {100 * agree:.3f} % ({m.mismatch} of {m.n} differ)"
+            grid = ""
             block = [f"<div style='{_CELL}'><b>{html.escape(f.name)}</b></div>",
                      bar_html("agree with float", agree, f"{100 * agree:.3f} % ({m.mismatch} of {m.n} differ)")]
             if m.accuracy is not None and m.float_accuracy is not None and m.confusion is not None:
@@ -156,14 +157,14 @@ class MetricsGlancePanel(w.HTML):
                 block.append(bar_html("accuracy (fixed)", m.accuracy, f"{100 * m.accuracy:.3f} %", "#2d6a2d"))
                 block.append(bar_html("accuracy (float)", m.float_accuracy, f"{100 * m.float_accuracy:.3f} %",
                                       "#99aaaa"))  # fmt: skip
-                block.append(grid_html("confusion: rows label, columns fixed-point decision", result.classes,
-                                       m.confusion))  # fmt: skip
+                grid = grid_html("confusion (rows label, columns fixed point)", result.classes, m.confusion)
                 line += "; confusion " + " / ".join(" ".join(str(v) for v in row) for row in m.confusion)
             elif result.n_classes > 2:  # no labels: which class float said against which fixed point says
-                block.append(grid_html("rows float decision, columns fixed-point decision", result.classes,
-                                       f.agreement, cls="fxnet-agreement"))  # fmt: skip
+                grid = grid_html("rows float, columns fixed point", result.classes, f.agreement,
+                                 cls="fxnet-agreement")  # fmt: skip
                 line += "; float vs fixed " + " / ".join(" ".join(str(v) for v in row) for row in f.agreement)
-            parts.append("".join(block))
+            parts.append(f"<div style='display:flex;flex-wrap:wrap;gap:4px 12px;align-items:flex-start'><div>"
+                         f"{''.join(block)}</div>{grid}</div>")  # fmt: skip
             lines.append(line)
             details += [f"{f.name}:", *("  " + ln for ln in m.summary().splitlines())]
         tot = result.shown_totals()
@@ -190,6 +191,6 @@ class MetricsGlancePanel(w.HTML):
             banner = (f"<div class='fxnet-glance-stale' style='{_CELL};color:{colour};background:#fff8e1;"
                       f"border:1px solid #f2b705'>{html.escape(self.note)}</div>")  # fmt: skip
         body = f"<div style='opacity:0.45'>{self._body}</div>" if self.note else self._body
-        value = f"<div class='fxnet-glance-body'>{banner}{body}</div>"
+        value = f"<div class='fxnet-glance-body' style='line-height:1.25'>{banner}{body}</div>"
         if value != self.value:
             self.value = value
