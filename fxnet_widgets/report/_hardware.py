@@ -43,12 +43,12 @@ def _resource_table(panel: Any) -> str:
 
 
 def hardware_section_html(widget: Any) -> str:
-    """The hardware section of the report of ``widget`` ("" when it has no panel, or the panel never ran)."""
+    """The hardware section of the report of ``widget`` ("" when it has no panel, or the panel was never started)."""
     from ..widgets.hardware_view import clock_of, clock_verdict
     from ..widgets.status import plan_widths
 
     panel = hardware_panel_of(widget)
-    if panel is None or (panel.result is None and not panel.error):
+    if panel is None or (panel.result is None and not panel.error and not panel.running):
         return ""
     parts = ['<section id="hardware"><h2>Hardware: synthesis and place and route</h2>']
     if panel.running:
@@ -58,7 +58,7 @@ def hardware_section_html(widget: Any) -> str:
         parts.append(f'<p class="error">last synthesis: {esc(panel.error)}</p>')
     r = panel.result
     if r is None:
-        parts.append("<p>No synthesis result.</p></section>")
+        parts.append("<p>No finished synthesis result.</p></section>")
         return "\n".join(parts)
     if panel.is_stale:
         parts.append(f'<p class="stale"><strong>stale: computed for another plan</strong> '
