@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import shutil
 from dataclasses import dataclass
+
 from ..core.synth import SynthesisResult, target
 from ..core.synth.tools import PACKAGES
 

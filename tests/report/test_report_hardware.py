@@ -74,7 +74,8 @@ def test_the_last_result_then_stale_after_a_plan_change(tmp_path, monkeypatch):
     # 1280x720p60: 74.25 MHz pixel clock (CTA-861 VIC 4)
     assert facts[:4] == ["target ice40-up5k, device iCE40UP5K-SG48", "clock 74.25 MHz (1280x720p60)",
                          "pipeline auto", f"latency {r.latency} clocks"]  # fmt: skip
-    rows = [[td.get_text().strip() for td in tr.find_all("td")] for tr in sec.find("table", class_="hardware")("tr")[1:]]
+    table = sec.find("table", class_="hardware")
+    rows = [[td.get_text().strip() for td in tr.find_all("td")] for tr in table("tr")[1:]]
     est = hardware_cost(net, plan, target="ice40-up5k").estimated()
     # iCE40UP5K: 5280 LUTs (and as many flip-flops), 30 sysMEM blocks of 4 kbit, 8 DSP blocks (FPGA-DS-02008)
     assert rows == [
