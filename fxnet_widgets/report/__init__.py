@@ -8,7 +8,8 @@ imports the explorer. A report has two layers:
   summary, the plan, the hardware cost, the metrics, the event table, and PNG
   pictures (preview, decision masks, the disagreement overlay, the three
   boundary slices, the cube, the event chart and one histogram per neuron),
-  drawn in Python;
+  drawn in Python, and the last synthesis result of the explorer's hardware
+  section (see :mod:`._hardware`);
 * the widgets themselves, embedded with their state by the standard Jupyter
   widgets embedding (``application/vnd.jupyter.widget-state+json``). There is
   no kernel in a report, so the page says which controls still work (the
@@ -40,6 +41,7 @@ from typing import Any
 from ..core.fileio import atomic_write_text
 from ._bundles import Bundles, cdn_bundles
 from ._bundles import offline_bundles as _offline_bundles
+from ._hardware import hardware_section_html
 from ._static import esc, static_sections
 
 __all__ = ["save_report", "report_html", "embedded_state", "kernel_note", "WIDGET_STATE_MIME", "WIDGET_VIEW_MIME"]
@@ -231,6 +233,7 @@ def report_html(
         "<body>",
         head,
         static,
+        hardware_section_html(widget),  # the explorer's last synthesis result ("" when none)
         live,
         _json_script(manager_state, WIDGET_STATE_MIME),
         bundles.html(),

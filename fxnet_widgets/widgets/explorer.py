@@ -20,6 +20,7 @@ from ..core.plan import Plan
 from .boundary import BoundaryPanel, CubePanel
 from .controls import PlanControlsPanel
 from .events import EventsPlot, HistogramsPanel
+from .hardware import HardwarePanel
 from .metrics import MetricsPanel
 from .preview import PreviewPanel
 from .session import Session
@@ -48,7 +49,9 @@ class Explorer(w.VBox):
 
     Below the controls and the status line come titled sections, all shown at
     once (:attr:`sections`): "decision boundary" (slices and cube, for three
-    inputs), "image" (with an image) and "overflow and clamps".
+    inputs), "image" (with an image), "overflow and clamps" and "hardware" (:attr:`hardware`, a
+    :class:`~fxnet_widgets.widgets.hardware.HardwarePanel`: synthesis of the current plan by the
+    open-source tools, in the background, only when its button is pressed).
 
     Parameters
     ----------
@@ -103,6 +106,8 @@ class Explorer(w.VBox):
             self.preview = PreviewPanel(s)
             parts.append(("image", self.preview))
         parts.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
+        self.hardware = HardwarePanel(s)  # cheap: no tool runs until "synthesize" is pressed
+        parts.append(("hardware", self.hardware))
         # titled sections, all shown at once: a figure in a hidden tab is drawn at zero size (bqplot
         # then logs negative <rect> sizes), and a report embeds the widgets with no kernel to redraw them
         self.sections: dict[str, w.VBox] = {title: _section(title, body) for title, body in parts}
