@@ -12,7 +12,10 @@ setting a slider to a new value.
 Targets (issue 16): panel overhead <= 10 % of the bare sweep; the scatter
 updated at least every 0.5 s; a pick within the budget of a slider change.
 
-Run: ``python benchmarks/bench_search_panel.py``
+The sweep runs in pieces sized by measured time (``PieceSizer`` in
+``widgets/search_run.py``): about 0.1 s each, one plan at least.
+
+Run: ``nice -n -5 python benchmarks/bench_search_panel.py`` (the load average is printed beside the figures)
 """
 
 from __future__ import annotations
@@ -31,8 +34,13 @@ from fxnet_widgets.widgets.search_panel import SearchPanel
 GRID = {"weight_bits": list(range(4, 14)), "table_bits": list(range(1, 21))}
 
 
+def load() -> str:
+    """The 1/5/15-minute load averages (2 cores are shared: wall figures stretch with them; CPU figures less)."""
+    return "load average " + " / ".join(f"{v:.2f}" for v in os.getloadavg()) + f" on {os.cpu_count()} cores"
+
+
 def main() -> None:
-    print(f"load average {os.getloadavg()[0]:.2f} on {os.cpu_count()} cores")
+    print(load())
     ex = Explorer.demo()
     net = ex.session.network
     test = read_image(DEMO_ASSETS / "scene-test.png")
@@ -68,11 +76,13 @@ def main() -> None:
         panel.run(wait=True)
         runs.append((time.perf_counter() - t0, time.process_time() - c0))
         gaps.append(max(b - a for a, b in zip([t0, *draws], draws)))
+        print(f"  round {len(runs)}: {len(draws)} scatter updates, largest gap {gaps[-1]:.3f} s; {load()}")
         assert panel.records == bare.records, "the panel's records must equal the bare sweep's"  # type: ignore[attr-defined]
     print("bare sweep (wall / CPU): " + ", ".join(f"{t:.3f} / {c:.3f} s" for t, c in bares))
     print("panel run (wall / CPU):  " + ", ".join(f"{t:.3f} / {c:.3f} s" for t, c in runs) +
           f" ({len(draws)} scatter updates per run)")  # fmt: skip
     print("largest gap between scatter updates: " + ", ".join(f"{g:.3f} s" for g in gaps) + " (target <= 0.5 s)")
+    print(load())
     for k, what in ((0, "wall"), (1, "CPU")):
         t_bare, t_panel = min(b[k] for b in bares), min(r[k] for r in runs)
         print(f"panel overhead ({what} time, fastest of each): {100 * (t_panel / t_bare - 1):+.1f} % of the bare "
@@ -91,6 +101,7 @@ def main() -> None:
         slides.append(time.perf_counter() - t0)
     mp, ms = statistics.median(picks), statistics.median(slides)
     print(f"pick: median {1000 * mp:.1f} ms; slider change: median {1000 * ms:.1f} ms; ratio {mp / ms:.2f}")
+    print(load())
 
 
 if __name__ == "__main__":

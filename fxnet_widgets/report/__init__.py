@@ -8,7 +8,8 @@ imports the explorer. A report has two layers:
   summary, the plan, the hardware cost, the metrics, the event table, and PNG
   pictures (preview, decision masks, the disagreement overlay, the three
   boundary slices, the cube, the event chart and one histogram per neuron),
-  drawn in Python;
+  drawn in Python, and the last synthesis result of the explorer's hardware
+  section (see :mod:`._hardware`);
 * the widgets themselves, embedded with their state by the standard Jupyter
   widgets embedding (``application/vnd.jupyter.widget-state+json``). There is
   no kernel in a report, so the page says which controls still work (the
@@ -40,6 +41,7 @@ from typing import Any
 from ..core.fileio import atomic_write_text
 from ._bundles import Bundles, cdn_bundles
 from ._bundles import offline_bundles as _offline_bundles
+from ._hardware import hardware_section_html
 from ._static import esc, static_sections
 
 __all__ = ["save_report", "report_html", "embedded_state", "kernel_note", "WIDGET_STATE_MIME", "WIDGET_VIEW_MIME"]
@@ -197,6 +199,10 @@ def report_html(
     page_title = title if title is not None else f"fxnet report: {shape} network"
     bundles: Bundles = _offline_bundles(offline_bundles) if offline_bundles is not None else cdn_bundles()
     static = static_sections(session, summary if summary is not None else session.summary())
+    if widget is not None:  # the explorer's last sweep (scatter, front) and pinned A/B comparison, when it has them
+        from ._search import extra_sections
+
+        static = "\n".join(p for p in (static, extra_sections(widget)) if p)
     manager_state, views = embedded_state(widget) if widget is not None else ({}, [])
     view_html = "\n".join(_json_script(v, WIDGET_VIEW_MIME) for v in views)
     mode = ("offline: every script is inlined in this file" if bundles.offline
@@ -227,6 +233,7 @@ def report_html(
         "<body>",
         head,
         static,
+        hardware_section_html(widget),  # the explorer's last synthesis result ("" when none)
         live,
         _json_script(manager_state, WIDGET_STATE_MIME),
         bundles.html(),

@@ -20,6 +20,7 @@ from ..core.plan import Plan
 from .boundary import BoundaryPanel, CubePanel
 from .controls import PlanControlsPanel
 from .events import EventsPlot, HistogramsPanel
+from .hardware import HardwarePanel
 from .metrics import MetricsPanel
 from .preview import PreviewPanel
 from .refining import RefinePanel
@@ -49,7 +50,11 @@ class Explorer(w.VBox):
 
     Below the controls and the status line come titled sections, all shown at
     once (:attr:`sections`): "decision boundary" (slices and cube, for three
-    inputs), "image" (with an image) and "overflow and clamps".
+    inputs), "refine" (:attr:`refining`, a :class:`~fxnet_widgets.widgets.refining.RefinePanel`:
+    better integers for the current plan, swapped in and out), "image" (with an image),
+    "overflow and clamps" and "hardware" (:attr:`hardware`, a
+    :class:`~fxnet_widgets.widgets.hardware.HardwarePanel`: synthesis of the current plan by the
+    open-source tools, in the background, only when its button is pressed).
 
     Parameters
     ----------
@@ -89,6 +94,7 @@ class Explorer(w.VBox):
         s = self.session
         self.status = StatusLinePanel(s)
         self.controls = PlanControlsPanel(s)
+        #: "metrics and cost": the figures at a glance, every figure under its collapsed "details"
         self.metrics = MetricsPanel(s, layout=w.Layout(width="560px", flex="0 1 auto"))
         self.events = EventsPlot(s)
         self.histograms = HistogramsPanel(s)
@@ -103,6 +109,8 @@ class Explorer(w.VBox):
             self.preview = PreviewPanel(s)
             parts.append(("image", self.preview))
         parts.append(("overflow and clamps", w.VBox([self.events, self.histograms])))
+        self.hardware = HardwarePanel(s)  # cheap: no tool runs until "synthesize" is pressed
+        parts.append(("hardware", self.hardware))
         # made after the slices: its view runs after theirs and draws the other network's outline on them
         self.refining = RefinePanel(s, self.boundary)
         parts.insert(1 if s.cube_ok else 0, ("refine", self.refining))

@@ -1,6 +1,9 @@
 """Metrics and cost: disagreement with float, accuracy, confusion, ties, events, hardware cost.
 
-The session computes every figure (:class:`~fxnet_widgets.widgets.results.DataFigures`,
+:class:`MetricsPanel` (the explorer's "metrics and cost") shows them at a glance
+(:class:`~fxnet_widgets.widgets.glance.MetricsGlancePanel`: bars, coloured grids,
+event badges, a stacked cost bar) above a collapsed "details" area holding every
+figure as a table. The session computes every figure (:class:`~fxnet_widgets.widgets.results.DataFigures`,
 :class:`~fxnet_widgets.core.analysis.cost.HardwareCost`); this panel only lays
 them out: :func:`metrics_rows` turns a result into rows (headings, ``key: value``
 lines, n x n matrices), :func:`rows_html` into an HTML table and
@@ -15,6 +18,7 @@ from typing import Any
 
 import ipywidgets as w
 
+from .glance import MetricsGlancePanel
 from .results import EVENT_LABELS, DataFigures, SessionResult
 from .session import Session
 from .text import ties_text
@@ -161,26 +165,57 @@ def rows_text(rows: list[Row]) -> str:
 
 
 class MetricsPanel(w.VBox):
-    """The figures of the current plan (updated on every change).
+    """The figures of the current plan (updated on every change): at a glance, every figure under "details".
+
+    Parameters
+    ----------
+    session
+        The :class:`~fxnet_widgets.widgets.session.Session` whose results it shows.
+    glance
+        Show the glance view on top (True) or only the table (False).
 
     Attributes
     ----------
+    glance : MetricsGlancePanel or None
+        The figures at a glance (its ``text`` and ``note``: see the class).
+    details : ipywidgets.VBox
+        The "details" area: :attr:`details_button` and :attr:`html`, shown while the button is down
+        (collapsed at first; ``details_button.value = True`` opens it).
     rows : list of Row
-        What the panel shows (:func:`metrics_rows`).
+        Every figure (:func:`metrics_rows`), the table in :attr:`html`.
     text : str
-        The same as deterministic plain text (:func:`rows_text`).
+        The same as deterministic plain text (:func:`rows_text`); also :meth:`summary`.
     """
 
-    def __init__(self, session: Session, **kwargs: Any) -> None:
+    def __init__(self, session: Session, *, glance: bool = True, **kwargs: Any) -> None:
         if not isinstance(session, Session):
             raise TypeError(f"session must be a Session, not {type(session).__name__}")
         self.session = session
         self.html = w.HTML()
         self.rows: list[Row] = []
         self.text = ""
-        super().__init__([w.HTML("<b>metrics and cost</b>"), self.html], **kwargs)
+        self.glance = MetricsGlancePanel(session, details=False) if glance else None
+        title = w.HTML("<b>metrics and cost</b>")
+        #: shows or hides :attr:`html` (every figure); collapsed at first beside the glance. No accordion:
+        #: the explorer has no hidden pages (a figure in one is drawn at zero size)
+        self.details_button = w.ToggleButton(value=not glance, description="details: every figure",
+                                             icon="chevron-right", layout=w.Layout(width="auto"))  # fmt: skip
+        self.details_button.observe(lambda _c: self._fold(), names="value")
+        self.details = w.VBox([self.details_button, self.html])
+        self._fold()
+        top = [title] if self.glance is None else [title, self.glance]
+        super().__init__([*top, self.details], **kwargs)
         self.add_class("fxnet-metrics")
         session.add_view("metrics", self._draw)
+
+    def _fold(self) -> None:
+        shown = bool(self.details_button.value)
+        self.html.layout.display = "" if shown else "none"
+        self.details_button.icon = "chevron-down" if shown else "chevron-right"
+
+    def summary(self) -> str:
+        """Every figure as deterministic text (:attr:`text`, what "details" shows)."""
+        return self.text
 
     def _draw(self, result: SessionResult) -> None:
         self.rows = metrics_rows(result)

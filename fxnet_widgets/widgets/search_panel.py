@@ -41,6 +41,7 @@ from .search_grid import GridEditor, grid_size, sub_grid
 from .search_plot import TradeOffFigure, moves_html
 from .search_run import (
     EVENT_CLASSES,
+    PieceSizer,
     RecordingExecutor,
     StopRequested,
     dominance_front,
@@ -94,7 +95,8 @@ class SearchPanel(w.VBox):
     layer
         The layer the grid changes (0-based; None: every layer).
     chunk_seconds
-        About how long one chunk of a sweep runs (the scatter is redrawn after each).
+        About how long one piece of a sweep runs (wall time; the scatter is redrawn after each;
+        see :class:`~fxnet_widgets.widgets.search_run.PieceSizer`).
     """
 
     def __init__(self, explorer: Any, grid: Any = None, *, budget: float | None = None, cost: str = "total_bits",
@@ -282,19 +284,19 @@ class SearchPanel(w.VBox):
         self.rate.value = rate_text(done, total, time.perf_counter() - self._t0)
 
     def _sweep(self, grid: dict[str, list[Any]], options: dict[str, Any]) -> None:
-        total = grid_size(grid)
-        pos, target = 0, 1
+        total, pos = grid_size(grid), 0
+        sizer = PieceSizer(self.network, grid, options["base"], options["layer"], options["keep_range"],
+                           self.codes.size // self.network.n_in, self.chunk_seconds)  # fmt: skip
         self._set_progress(0, total)
         while pos < total and not self._stop.is_set():
-            sub = sub_grid(grid, pos, target)
+            sub = sub_grid(grid, pos, sizer.next_size(pos))
             n = grid_size(sub)
             t0 = time.perf_counter()
             got = sweep(self.network, self.codes, sub, executor=self.executor, **options)
-            took = time.perf_counter() - t0
+            sizer.finished(pos, n, time.perf_counter() - t0)
             self._add([replace(r, index=r.index + pos) for r in got])
             pos += n
             self._set_progress(pos, total)
-            target = max(1, min(2 * target, int(self.chunk_seconds * n / max(took, 1e-6))))
 
     def _tune(self, budget: float, cost: str) -> None:
         rounds = [0]
@@ -325,7 +327,7 @@ class SearchPanel(w.VBox):
             if self.kind == "tune":
                 self._records.sort(key=lambda r: r.index)
         now = time.perf_counter()
-        if now - self._drawn_at >= 0.1:
+        if now - self._drawn_at >= 0.05:
             self.redraw()
 
     # -- picking -------------------------------------------------------------------------

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import concurrent.futures as cf
 import html
+import itertools
 import threading
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any
@@ -17,6 +18,7 @@ from typing import Any
 import numpy as np
 
 from ..core.analysis import SweepRecord, TuneResult
+from ..core.analysis.search.grid import apply_settings
 from ..core.analysis.search.tuning import move
 from ..core.formats import q_notation
 from ..core.labels import LabelledPixels
@@ -25,10 +27,12 @@ from ..core.plan import Plan
 
 __all__ = [
     "EVENT_CLASSES",
+    "PieceSizer",
     "RecordingExecutor",
     "StopRequested",
     "event_class",
     "plan_q",
+    "plan_work",
     "rate_text",
     "record_html",
     "search_data",
@@ -152,6 +156,69 @@ def tune_path(network: Network, result: TuneResult) -> list[SweepRecord]:
     if plan != result.plan or len(path) != len(result.steps) + 1:
         raise ValueError("tune path must end at the tuned plan, not elsewhere")
     return path
+
+
+#: table entries that cost about as much time as one sample (the table build against the per-sample loops;
+#: measured with ``benchmarks/bench_search_panel.py`` on the demo network, 2026: it only sizes the pieces)
+TABLE_ENTRIES_PER_SAMPLE = 4
+
+
+def plan_work(network: Network, plan: Plan | None, n_samples: int) -> float:
+    """A plan's expected evaluation time in sample units: the samples plus its table entries / 4.
+
+    Only :class:`PieceSizer` reads it (how many plans fit in one piece); a refused plan (None) costs 1.
+
+    >>> from fxnet_widgets.core.network import Network
+    >>> net = Network.from_layers([([[1.0, 2.0], [0.5, 0.5]], [0.0, 0.0], "sigmoid")])
+    >>> plan_work(net, Plan.uniform(net, weight_bits=8, weight_frac=5, acc_bits=16, out_bits=8,
+    ...                              table_bits=10, table_frac=6), 1000)
+    1512.0
+    """
+    if plan is None:
+        return 1.0
+    entries = sum(L.n_out << lp.table_bits for lp, L in zip(plan.layers, network.layers) if lp.table_bits is not None)
+    return float(n_samples) + entries / TABLE_ENTRIES_PER_SAMPLE
+
+
+class PieceSizer:
+    """How many plans of a grid go into the next piece so that it runs about ``seconds`` (wall time).
+
+    The expected work of every plan (:func:`plan_work`) is known before the run;
+    the seconds per unit of work are measured on the pieces that finished (the
+    latest piece counts half, and a piece more than twice as slow as expected counts
+    fully, so a machine that gets busy shrinks the pieces at once).
+    The first piece is one plan.
+    """
+
+    def __init__(self, network: Network, grid: dict[str, list[Any]], base: Plan, layer: int | None,
+                 keep_range: bool, n_samples: int, seconds: float) -> None:  # fmt: skip
+        names = list(grid)
+        self.work: list[float] = []
+        for combo in itertools.product(*(grid[k] for k in names)):
+            try:
+                plan: Plan | None = apply_settings(network, base, dict(zip(names, combo)), layer, keep_range)
+            except ValueError:
+                plan = None
+            self.work.append(plan_work(network, plan, n_samples))
+        self.seconds = float(seconds)
+        self.rate: float | None = None  # seconds per unit of work
+
+    def next_size(self, pos: int) -> int:
+        """Plans from ``pos`` that fit in one piece (at least 1)."""
+        if self.rate is None:
+            return 1
+        budget, n = self.seconds / self.rate, 0
+        for w in self.work[pos:]:
+            if n and budget < w:
+                break
+            budget -= w
+            n += 1
+        return max(1, n)
+
+    def finished(self, pos: int, n: int, seconds: float) -> None:
+        """Piece ``[pos, pos + n)`` took ``seconds``: update the measured rate."""
+        rate = max(seconds, 1e-6) / max(sum(self.work[pos : pos + n]), 1.0)
+        self.rate = rate if self.rate is None or rate > 2 * self.rate else 0.5 * (rate + self.rate)
 
 
 class StopRequested(Exception):

@@ -269,6 +269,12 @@ def voila_merge_server(tmp_path_factory: pytest.TempPathFactory, chromium_availa
 
 
 @pytest.fixture(scope="session")
+def voila_hardware_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
+    """Voila serving ``tests/browser/hardware_section.ipynb`` (an explorer whose hardware section can synthesize)."""
+    yield from _voila(tmp_path_factory, HERE / "hardware_section.ipynb")
+
+
+@pytest.fixture(scope="session")
 def notebook_server(tmp_path_factory: pytest.TempPathFactory, chromium_available: Any) -> Iterator[Server]:
     """Notebook 7 on a free loopback port, its own notebook dir holding a copy of ``plan_merge.ipynb``."""
     if not _module_available("notebook"):

@@ -148,7 +148,7 @@ def test_sample_dots_are_outlined_in_the_contrasting_colour(explorer):
 def test_explorer_shows_every_section_at_once(explorer):
     import ipywidgets as w
 
-    assert list(explorer.sections) == ["decision boundary", "refine", "image", "overflow and clamps"]
+    assert list(explorer.sections) == ["decision boundary", "refine", "image", "overflow and clamps", "hardware"]
     assert all(sec in explorer.children for sec in explorer.sections.values())
 
     def walk(widget):

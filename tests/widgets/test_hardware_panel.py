@@ -1,8 +1,11 @@
-"""The hardware panel: background synthesis, progress and stop, figures only for their own plan.
+"""The hardware panel and the Explorer's "hardware" section: background synthesis, figures only for their plan.
 
-The synthesis runs are real (Yosys, nextpnr-ice40) on a small Verilog design made
-from the plan (a registered adder as wide as layer 1's accumulator), so the panel's
-figures are compared with a direct :func:`synthesize` of the same design.
+The synthesis runs are real (Yosys, nextpnr-ice40): either on a small Verilog design
+made from the plan (a registered adder as wide as layer 1's accumulator), whose
+flip-flop count is known from the design itself, or, through the Explorer, on the
+generated datapath, whose block RAMs follow from the tables' sizes and the iCE40's
+4 kbit memory blocks. Device capacities are the datasheet figures named in
+``core/synth/targets.py``.
 """
 
 from __future__ import annotations
@@ -15,7 +18,9 @@ import pytest
 from fxtools import missing
 
 from fxnet_widgets.core.analysis.cost import hardware_cost
+from fxnet_widgets.core.plan import Plan
 from fxnet_widgets.core.synth import CAUTION, SynthesisCancelled, ToolError, synthesize
+from fxnet_widgets.widgets.explorer import Explorer
 from fxnet_widgets.widgets.hardware import CLOCK_MHZ, HardwarePanel
 from fxnet_widgets.widgets.session import Session
 
@@ -58,7 +63,7 @@ def test_synthesize_in_the_background_shows_the_tools_figures(tools, session, tm
     panel.button.click()
     assert panel.button.disabled and not panel.stop_button.disabled
     assert panel.wait(120)
-    assert seen == [["cancel", "clock_mhz", "progress", "target", "video"]]
+    assert seen == [["cancel", "clock_mhz", "pipeline", "progress", "target", "video"]]
     direct = synthesize(_adder_dir(tmp_path, session.plan), video="1280x720p60", cache_dir=cache)
     assert panel.result == direct and panel.result_plan == session.plan and panel.error == ""
     n = session.plan.layers[0].acc_bits
@@ -66,8 +71,11 @@ def test_synthesize_in_the_background_shows_the_tools_figures(tools, session, tm
     est = hardware_cost(session.network, session.plan, target="ice40-up5k").estimated()
     assert f"  flip-flops: estimated {est['ffs']}, measured {n + 1} of 5280" in panel.text
     assert f"  maximum clock: {direct.fmax_mhz:.2f} MHz (nextpnr, seed 1)" in panel.text
-    # 1280x720p60: 74.25 MHz pixel clock (CTA-861 VIC 4)
-    assert "  required clock 74.25 MHz (1280x720p60): " in panel.text
+    # 1280x720p60: 74.25 MHz pixel clock (CTA-861 VIC 4); the margin is fmax / clock, the slack fmax - clock
+    verdict = "met" if direct.fmax_mhz >= 74.25 else "NOT met"
+    slack = f"{abs(direct.fmax_mhz - 74.25):.2f} MHz {'to spare' if verdict == 'met' else 'short'}"
+    assert (f"  required clock 74.25 MHz (1280x720p60): {verdict} (margin x{direct.fmax_mhz / 74.25:.2f}, {slack})"
+            in panel.text.splitlines())  # fmt: skip
     assert panel.progress.value == 1.0 and panel.progress.bar_style == "success"
     assert not panel.button.disabled and panel.stop_button.disabled
     assert "stale" not in panel.text and panel.stale.value == ""
@@ -124,9 +132,99 @@ def test_the_clock_chooser_passes_a_clock_in_mhz(session):
     panel.target.value = "ice40-hx8k"
     panel.start()
     assert panel.wait(30)
-    assert (got["target"], got["video"], got["clock_mhz"]) == ("ice40-hx8k", None, 48.0)
+    assert (got["target"], got["video"], got["clock_mhz"], got["pipeline"]) == ("ice40-hx8k", None, 48.0, "auto")
+    panel.pipeline.value = 6
+    panel.start()
+    assert panel.wait(30) and got["pipeline"] == 6
 
 
 def test_wrong_session_is_a_type_error():
     with pytest.raises(TypeError, match=r"^session must be a Session, not str$"):
         HardwarePanel("session")
+
+
+def test_missing_tools_are_one_line_naming_the_debian_package(session, tmp_path, monkeypatch):
+    monkeypatch.setenv("PATH", str(tmp_path))  # an empty directory: no tool is found
+    panel = HardwarePanel(session, target="xilinx-7")
+    # Debian packages "yosys" and "nextpnr-ice40" (packages.debian.org, common practice)
+    line = "cannot synthesize for xilinx-7: yosys is not installed (Debian package yosys: apt-get install yosys)"
+    assert panel.text.splitlines() == [line, "not synthesized yet: press synthesize"]
+    assert panel.button.disabled and line in panel.tools_note.value
+    panel.target.value = "ice40-up5k"  # placed and routed: nextpnr-ice40 is needed too
+    assert panel.missing == ("cannot synthesize for ice40-up5k: yosys and nextpnr-ice40 are not installed "
+                             "(Debian packages yosys, nextpnr-ice40: apt-get install yosys nextpnr-ice40)")  # fmt: skip
+    panel.start()  # no thread, no tool: the same line as the error
+    assert not panel.running and panel.error == panel.missing and panel.result is None
+
+
+def test_bad_choices_are_one_line_naming_the_field(session):
+    with pytest.raises(ValueError, match=r"^target must be one of ice40-up5k, .*, not 'ice41'$"):
+        HardwarePanel(session, target="ice41")
+    with pytest.raises(ValueError, match=r"^pipeline must be 'auto' or an integer from 0 to 32, not 99$"):
+        HardwarePanel(session, pipeline=99)
+    with pytest.raises(ValueError, match=r"^video must be one of .*, not '720p'$"):
+        HardwarePanel(session, video="720p")
+
+
+# -- the Explorer's "hardware" section ------------------------------------------------------------
+def _small_plan(net, table_bits: int):
+    """A plan whose four tables (1024 or 512 words of 8 bits) are 2 or 1 iCE40 memory blocks each."""
+    return Plan.uniform(net, weight_bits=8, weight_frac=4, acc_bits=16, out_bits=8, table_bits=table_bits,
+                        table_frac=6).replace(layer=1, weight_frac=5, acc_bits=17)  # fmt: skip
+
+
+def test_constructing_an_explorer_runs_no_tool(fruit_net, fruit_plan, monkeypatch):
+    import subprocess
+
+    def refuse(*args, **kwargs):
+        raise AssertionError(f"a tool ran while the explorer was built: {args[0]!r}")
+
+    monkeypatch.setattr(subprocess, "Popen", refuse)
+    monkeypatch.setattr(subprocess, "run", refuse)
+    ex = Explorer(fruit_net, plan=fruit_plan)
+    assert list(ex.sections)[-2:] == ["overflow and clamps", "hardware"]
+    assert ex.sections["hardware"].children[1] is ex.hardware and isinstance(ex.hardware, HardwarePanel)
+    assert ex.hardware.session is ex.session and ex.hardware.result is None
+    assert (ex.hardware.target.value, ex.hardware.clock.value, ex.hardware.pipeline.value) == (
+        "ice40-up5k", "1280x720p60", "auto")  # fmt: skip
+
+
+def test_explorer_synthesize_click_shows_the_measured_table_then_stale(tools, fruit_net, tmp_path, monkeypatch):
+    import math
+
+    monkeypatch.setenv("FXNET_SYNTH_CACHE", str(tmp_path / "cache"))
+    plan = _small_plan(fruit_net, 10)
+    ex = Explorer(fruit_net, plan=plan)
+    hw = ex.hardware
+    hw.button.click()
+    assert hw.running or hw.result is not None
+    ex.plan = ex.plan  # the other views stay live while the tools run (same plan: nothing goes stale)
+    assert hw.wait(300), "synthesis did not finish in 300 s"
+    r = hw.result
+    assert hw.error == "" and r is not None and hw.result_plan == plan
+    assert r == synthesize(fruit_net, plan, target="ice40-up5k", video="1280x720p60", pipeline="auto")  # cached
+    # the iCE40 UP5K's sysMEM blocks hold 4 kbit each (FPGA-DS-02008); four tables of 2**10 words x 8 bits
+    assert r.brams == 4 * math.ceil(2**10 * 8 / 4096)
+    est = hardware_cost(fruit_net, plan, target="ice40-up5k").estimated()
+    table = hw.figures.value
+    # iCE40UP5K: 5280 LUTs, 30 block RAMs, 8 DSP blocks (FPGA-DS-02008, from memory)
+    assert (f"<tr><td>LUTs</td><td>{est['luts']}</td><td>{r.luts}</td><td>" in table
+            and f"{100 * r.luts / 5280:.1f} % of 5280</td></tr>" in table)  # fmt: skip
+    assert f"<tr><td>block RAMs</td><td>{est['brams']}</td><td>{r.brams}</td>" in table and "% of 30<" in table
+    assert f"<tr><td>DSP blocks</td><td>-</td><td>{r.dsps}</td>" in table and "% of 8<" in table
+    assert table.count("class='fxnet-bar'") == 4
+    assert f"maximum clock: {r.fmax_mhz:.2f} MHz (nextpnr, seed 1)" in table
+    assert "required clock 74.25 MHz (1280x720p60): " in table and hw.stale.value == ""
+
+    ex.plan = _small_plan(fruit_net, 9)
+    assert hw.is_stale and "stale: these figures are for another plan" in hw.stale.value
+    assert hw.text.startswith("stale: these figures are for another plan (L1 W8.4 A16 T10.6 O8, ")
+    hw.target.value = "ice40-hx8k"
+    assert "note: these figures are for ice40-up5k (iCE40UP5K-SG48), 74.25 MHz (1280x720p60), pipeline auto" \
+        in hw.text  # fmt: skip
+    hw.target.value = "ice40-up5k"
+    hw.button.click()
+    assert hw.wait(300) and not hw.is_stale and hw.stale.value == ""
+    # 2**9 words x 8 bits: one 4 kbit block per table
+    est9 = hardware_cost(fruit_net, ex.plan, target="ice40-up5k").estimated()
+    assert hw.result.brams == 4 and f"<td>block RAMs</td><td>{est9['brams']}</td><td>4</td>" in hw.figures.value

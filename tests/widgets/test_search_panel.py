@@ -290,3 +290,24 @@ def test_sliders_move_while_a_background_sweep_runs(explorer):
     want = sweep(s.network, s.samples, GRID, base=base, layer=0, labels=s.labels, executor=SerialExecutor())
     assert panel.records == want
     assert_explorer_matches_kernel(explorer)
+
+
+def test_pieces_are_sized_by_expected_work(fruit_net, fruit_plan):
+    """A table of T address bits holds 2**T entries per neuron (the contract's table, semantics.md): a piece of
+    wide-table plans holds fewer plans than one of narrow-table plans at the same measured rate."""
+    from fxnet_widgets.widgets.search_run import TABLE_ENTRIES_PER_SAMPLE, PieceSizer, plan_work
+
+    grid = {"table_bits": [4, 5, 6, 16, 17, 18]}
+    sizer = PieceSizer(fruit_net, grid, fruit_plan, 0, False, 1000, seconds=0.1)
+    n_out = fruit_net.layers[0].n_out
+    tail = sum(L.n_out << lp.table_bits for lp, L in zip(fruit_plan.layers[1:], fruit_net.layers[1:]))
+    want = [1000 + ((n_out << t) + tail) / TABLE_ENTRIES_PER_SAMPLE for t in grid["table_bits"]]
+    assert sizer.work == pytest.approx(want)
+    assert plan_work(fruit_net, None, 1000) == 1.0  # a refused plan: next to nothing
+    assert sizer.next_size(0) == 1  # nothing measured yet: one plan
+    sizer.finished(0, 1, 0.1 * want[0] / (want[0] + want[1] + want[2]))  # a rate that fits three narrow plans
+    assert sizer.next_size(1) == 2  # plans 1 and 2 fit, plan 3 (a wider table) does not
+    assert sizer.next_size(3) == 1  # a wide plan alone
+    rate = sizer.rate
+    sizer.finished(3, 1, 10 * rate * want[3])  # ten times slower than expected: taken at once
+    assert sizer.rate == pytest.approx(10 * rate)

@@ -44,3 +44,36 @@ def test_sections_carry_the_front_and_the_comparison(explorer):
     a, b = (dict((label, (x, y)) for label, x, y in cmp.comparison.rows)["cost total_bits"])
     assert rows["cost total_bits"][:2] == [str(a), str(b)]
     assert html.count('class="compare-slice"') == 3 and 'class="compare-image"' in html
+
+
+def test_report_carries_the_sweep_and_the_pinned_comparison(explorer):
+    """The saved page: the scatter PNG, the front as a table (equal to a bare ``sweep``'s Pareto front), A and B."""
+    from bs4 import BeautifulSoup
+
+    from fxnet_widgets.core.analysis import pareto_front, sweep
+    from fxnet_widgets.report import report_html
+
+    page = BeautifulSoup(report_html(explorer.session, widget=explorer), "html.parser")
+    assert page.find(id="search") is None and page.find(id="compare") is None  # nothing run or pinned yet
+    grid = {"weight_bits": [4, 6, 8, 10], "table_bits": [6, 9]}
+    panel = SearchPanel(explorer, grid)
+    base = explorer.plan
+    panel.run(wait=True)
+    s = explorer.session
+    bare = sweep(s.network, s.samples, grid, base=base, layer=0, labels=s.labels)  # the core's own sweep
+    want = [(bare.index(r), r.cost, r.mismatch) for r in pareto_front(bare)]
+    cmp = explorer.compare(panel.front[0].plan)
+    page = BeautifulSoup(report_html(explorer.session, widget=explorer), "html.parser")
+    ids = [sec.get("id") for sec in page.find_all("section")]
+    assert ids.index("search") < ids.index("compare") < ids.index("live")  # static parts before the live widgets
+    img = page.select_one("#search figure.search-scatter img")
+    png = base64.b64decode(img["src"].split(",", 1)[1])
+    assert Image.open(io.BytesIO(png)).format == "PNG"
+    rows = [[td.get_text() for td in tr.find_all("td")] for tr in page.select("#search table.search-front tr")[1:]]
+    assert [(int(r[0]), int(r[2]), int(r[3])) for r in rows] == want
+    head = [th.get_text() for th in page.select("#compare table.compare tr")[0].find_all("th")]
+    assert head == ["", "A", "B", "change"]
+    got = {tr.find_all("td")[0].get_text(): [td.get_text() for td in tr.find_all("td")[1:3]]
+           for tr in page.select("#compare table.compare tr")[1:]}  # fmt: skip
+    a, b = dict((label, (x, y)) for label, x, y in cmp.comparison.rows)["cost total_bits"]
+    assert got["cost total_bits"] == [str(a), str(b)]
