@@ -472,3 +472,32 @@ def test_split_over_workers_gives_the_same_records(demo_clip):
         with distributed.Client(cluster) as client:
             parts = analyse_footage_split(net, plan, demo_clip, client, frames="1:12:2")
     assert parts.frames == whole.frames and parts.to_dict() == whole.to_dict()
+
+
+# -- the per-frame loop over the coded table: the same counts as emulate -------------------
+@pytest.mark.parametrize("seed, hidden, packing", [(0, 0, 0), (301, 0, 2), (302, 0, 1), (403, 6, 0), (402, 6, None)])
+def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, packing):
+    from fxnet_widgets.core.footage._coded import coded_table
+    from fxnet_widgets.core.footage.analyse import _frame_record
+
+    rng = np.random.default_rng(seed)
+    if seed == 0:  # the demo network, a narrow plan: more than 16 distinct values, one code per byte
+        net = Network.load("assets/network.json")
+        plan = Plan.load("assets/plan.json", net).replace(acc_bits=13, out_bits=5)
+    else:  # random RGB networks: 4 codes per byte, 1 per byte (16-bit values), too many values (the byte tables)
+        acts = ("sigmoid", "sigmoid") if seed == 301 else ("tanh", "sigmoid")
+        net = _random_network(rng, 3, 8, [hidden or int(rng.integers(3, 6))], 1, acts)
+        plan = _random_plan(rng, net)
+    fixed, flt = compile_lookup(net, plan), compile_float_lookup(net)
+    coded = coded_table(fixed, flt)
+    assert (coded.log2_per_byte if coded is not None else None) == packing
+    noisy = rng.integers(0, 256, (48, 80, 3), dtype=np.uint8)  # every pixel its own colour
+    for frame in (noisy, *demo_frames(3, 80, 48)):
+        rec = _frame_record(fixed, flt, frame)
+        ref = emulate(net, plan, frame)  # the reference: the kernel itself on the frame's pixels
+        assert rec["differ"] == ref.mismatch
+        assert rec["positive_fixed"] == int(np.count_nonzero(ref.decisions == 1))
+        assert rec["positive_float"] == int(np.count_nonzero(ref.float_decisions == 1))
+        for name in ("acc_overflow", "table_low", "table_high"):
+            assert rec["events"][name] == [e[name].tolist() for e in ref.events]
+        assert rec["mean_rgb"] == pytest.approx(frame.reshape(-1, 3).mean(axis=0), abs=1e-4)

@@ -75,12 +75,12 @@ class _Kernels:
                 out_fl[i] = flt[c]
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
-        def frame_stats_combined(rgb: np.ndarray, table: np.ndarray, n_slots: int, slot_counts: np.ndarray,
-                                 sums: np.ndarray) -> tuple[int, int, int]:  # pragma: no cover
-            # table: bit 0 fixed decision, bit 1 float decision, bits 2.. the event slots: one read per pixel
-            pos_fx = 0
-            pos_fl = 0
-            differ = 0
+        def frame_codes(rgb: np.ndarray, table: np.ndarray, lg: int, hist: np.ndarray,
+                        sums: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # table: dense codes, 1 << lg per byte (see _coded): one read per pixel, a histogram of codes
+            width = np.int32(8 >> lg)
+            low = np.int32((1 << lg) - 1)
+            mask = np.int32((1 << (8 >> lg)) - 1)
             s0 = 0
             s1 = 0
             s2 = 0
@@ -91,19 +91,24 @@ class _Kernels:
                 s0 += r
                 s1 += g
                 s2 += b
-                e = table[(r << 16) | (g << 8) | b]
-                pos_fx += e & 1
-                pos_fl += (e >> 1) & 1
-                differ += (e ^ (e >> 1)) & 1
-                e >>= 2
-                if e:
-                    for k in range(n_slots):
-                        if (e >> k) & 1:
-                            slot_counts[k] += 1
+                c = (r << 16) | (g << 8) | b
+                hist[(np.int32(table[c >> lg]) >> ((c & low) * width)) & mask] += 1
             sums[0] += s0
             sums[1] += s1
             sums[2] += s2
-            return pos_fx, pos_fl, differ
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def combine(fixed: np.ndarray, flt: np.ndarray, events: np.ndarray, out: np.ndarray,
+                    hist: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # out = fixed | float << 1 | events << 2 per colour (events of length 1: none), and how often each
+            with_events = events.shape[0] == out.shape[0]
+            for i in range(out.shape[0]):
+                v = np.uint64(fixed[i]) | (np.uint64(flt[i]) << np.uint64(1))
+                if with_events:
+                    v |= np.uint64(events[i]) << np.uint64(2)
+                out[i] = v
+                if hist.shape[0]:
+                    hist[v] += 1
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def build(low_sum: np.ndarray, const: np.ndarray, h0: int, h1: int, weights: np.ndarray,
@@ -179,8 +184,9 @@ class _Kernels:
                 out[i] = o
 
         self.build = build
+        self.combine = combine
+        self.frame_codes = frame_codes
         self.compact = compact
-        self.frame_stats_combined = frame_stats_combined
         self.decide_packed = decide_packed
         self.frame_stats = frame_stats
         self.both = both
