@@ -501,3 +501,42 @@ def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, packing)
         for name in ("acc_overflow", "table_low", "table_high"):
             assert rec["events"][name] == [e[name].tolist() for e in ref.events]
         assert rec["mean_rgb"] == pytest.approx(frame.reshape(-1, 3).mean(axis=0), abs=1e-4)
+
+
+# -- the float look-up: predict's decisions, float32 chunks checked against the float64 reference --
+@pytest.mark.parametrize("seed", range(8))
+def test_float_lookup_equals_predict_on_every_colour(seed):
+    from fxnet_widgets.core.footage._float_build import _parts, error_bound, float32_chunk
+
+    clear_lookup_cache()
+    rng = np.random.default_rng(700 + seed)
+    n_in, bits = [(3, 4), (2, 6), (3, 5), (1, 12)][seed % 4]
+    acts = [("sigmoid", "sigmoid"), ("relu", "tanh"), ("tanh", "identity"), ("identity", "relu")][seed // 2 % 4]
+    n_out = 1 if seed % 3 else 3
+    net = _random_network(rng, n_in, bits, [int(rng.integers(2, 12))], n_out, acts)
+    colours = np.stack(np.unravel_index(np.arange(1 << (n_in * bits)), (1 << bits,) * n_in), axis=1)
+    out64 = net.predict(colours)  # the reference of the semantics: float64 forward pass
+    assert np.array_equal(compile_float_lookup(net).decisions, net.decide(out64))
+    # the error bound holds on every colour (the float32 outputs against predict's float64 ones)
+    low32, high32 = _parts(net)
+    out32 = float32_chunk(net, low32, high32, 0, high32.shape[0]).T.astype(np.float64)
+    assert np.all(np.abs(out32 - out64) <= error_bound(net)[None, :])
+
+
+def test_float_lookup_on_the_boundary_and_rgb8_samples():
+    clear_lookup_cache()
+    # zero weights: every colour's output is sigmoid(0) = 0.5 exactly, the threshold: all go to predict
+    flat = Network.from_layers([(np.zeros((1, 3)), [0.0], "sigmoid")], input_bits=4)
+    assert flat.threshold == 0.5
+    lut = compile_float_lookup(flat)
+    assert lut.decisions.tolist() == [1] * 4096  # 0.5 >= 0.5 (Network.decide: ">= threshold")
+    # three equal outputs: argmax ties go to the lowest index, as numpy.argmax (predict + decide)
+    tie = Network.from_layers([(np.ones((3, 3)), [0.0] * 3, "identity")], input_bits=4)
+    assert not compile_float_lookup(tie).decisions.any()
+    # the demo network over 8-bit RGB: sampled colours against predict
+    net = Network.load("assets/network.json")
+    lut = compile_float_lookup(net)
+    rng = np.random.default_rng(9)
+    sample = rng.integers(0, 256, (200_000, 3))
+    idx = (sample[:, 0] << 16) | (sample[:, 1] << 8) | sample[:, 2]
+    assert np.array_equal(lut.decisions[idx], net.decide(net.predict(sample)))

@@ -288,18 +288,15 @@ def _finish(network: Network, plan: Plan | None, bits: int, n_in: int, decisions
 
 
 def _build_float(network: Network, progress: Callable[[int, int], None] | None) -> Any:
+    """``predict`` + ``decide`` on every colour: float32 chunks, ``predict`` itself near the boundary
+    (:mod:`._float_build`)."""
+    from ._float_build import build_float_decisions
+
     t0 = time.perf_counter()
-    total = _check_cube(network)
-    bits, n_in = network.input_bits, network.n_in
-    size = 1 << total
-    decisions = np.empty(size, dtype=np.uint8)
+    _check_cube(network)
     with _one_blas_thread():
-        for start in range(0, size, CHUNK_COLOURS):
-            stop = min(size, start + CHUNK_COLOURS)
-            decisions[start:stop] = network.decide(network.predict(_index_codes(start, stop, bits, n_in)))
-            if progress is not None:
-                progress(stop, size)
-    return _finish(network, None, bits, n_in, decisions, None, None, (), t0)
+        decisions, _ = build_float_decisions(network, progress)
+    return _finish(network, None, network.input_bits, network.n_in, decisions, None, None, (), t0)
 
 
 def _one_blas_thread() -> Any:

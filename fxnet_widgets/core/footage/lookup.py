@@ -212,7 +212,13 @@ def compile_lookup(network: Network, plan: Plan, *, codes: bool = False, events:
 
 
 def compile_float_lookup(network: Network, *, progress: Callable[[int, int], None] | None = None) -> ColourLookup:
-    """The float network's decisions over every input colour (float64, as ``Network.predict``; cached)."""
+    """The float network's decisions over every input colour, those of ``Network.predict`` (float64)
+    and ``Network.decide`` colour for colour (cached).
+
+    Computed in float32 chunks with a bound on their error; the colours near the decision
+    boundary are recomputed by ``predict`` itself (:mod:`._float_build`; 2^24 bytes of
+    decisions plus about 2 MiB of work for the demo network).
+    """
     if not isinstance(network, Network):
         raise TypeError(f"network must be a Network, not {type(network).__name__}")
     return _cached(("float", network.digest), lambda: _build_float(network, progress))
