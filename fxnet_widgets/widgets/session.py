@@ -53,7 +53,7 @@ from ..core.starting import starting_plan, suggest_plan
 from ..render.raster import MAX_PREVIEW_WIDTH
 from . import parts
 from .binning import BinCounter, neuron_results
-from .data import SessionData
+from .data import SessionData, replace_image
 from .results import SessionResult, layer_kind
 from .text import summary_text
 
@@ -408,6 +408,9 @@ class Session(t.HasTraits):
             figures=figures, cost=cost, layer_safe_acc_bits=safe,
             kinds=tuple(layer_kind(L.activation) for L in net.layers),
         )  # fmt: skip
+
+    #: ``set_image(image, image_labels=None, note=None)``: another image, one update (:func:`.data.replace_image`)
+    set_image = replace_image
 
     def refresh(self) -> None:
         """Recompute and redraw every view (e.g. after a view was fixed)."""
