@@ -122,3 +122,24 @@ def test_a_bad_frame_image_leaves_the_session_as_it_was(session):
     with pytest.raises(ValueError, match=r"^image_labels must have the image's shape \(4, 4\), not \(2, 2\)$"):
         session.set_image(np.zeros((4, 4, 3), np.uint8), np.zeros((2, 2), np.int64))
     assert session.data is before
+
+
+def test_every_explorer_view_shows_the_current_frame(fruit_net, fruit_plan, belt_image, labelled_samples, clip):
+    from widget_checks import assert_explorer_matches_kernel
+
+    from fxnet_widgets.widgets import Explorer
+
+    codes, labels = labelled_samples
+    ex = Explorer(fruit_net, image=belt_image, samples=codes, labels=labels, plan=fruit_plan)
+    panel = FootagePanel(ex, clip, background=False)
+    frames = demo_frames(N, W, H)
+    for i in (1, N - 2):
+        panel.slider.value = i
+        # preview, slices, events, histograms: what the kernel computes on this frame (and the samples)
+        assert_explorer_matches_kernel(ex, frames[i])
+        assert not ex.session.view_errors and not ex.session.error
+        assert f"frame {i} at {i / 25:.3f} s of belt.mkv" in ex.session.image_note
+    ex.session.plan = fruit_plan.replace(out_bits=5)  # a plan change: the explorer still shows the frame
+    assert_explorer_matches_kernel(ex, frames[N - 2])
+    panel.close()
+    assert_explorer_matches_kernel(ex, belt_image)
