@@ -475,23 +475,26 @@ def test_split_over_workers_gives_the_same_records(demo_clip):
 
 
 # -- the per-frame loop over the coded table: the same counts as emulate -------------------
-@pytest.mark.parametrize("seed, hidden, packing", [(0, 0, 0), (301, 0, 2), (302, 0, 1), (403, 6, 0), (402, 6, None)])
-def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, packing):
+@pytest.mark.parametrize("seed, hidden, kind", [(0, 0, "escape"), (301, 0, "2-bit"), (302, 0, "escape"),
+                                                (403, 6, "escape"), (402, 6, None)])  # fmt: skip
+def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, kind):
     from fxnet_widgets.core.footage._coded import coded_table
     from fxnet_widgets.core.footage.analyse import _frame_record
 
     rng = np.random.default_rng(seed)
-    if seed == 0:  # the demo network, a narrow plan: more than 16 distinct values, one code per byte
+    if seed == 0:  # the demo network, a narrow plan: 30 distinct values, 2-bit codes and the escape table
         net = Network.load("assets/network.json")
         plan = Plan.load("assets/plan.json", net).replace(acc_bits=13, out_bits=5)
-    else:  # random RGB networks: 4 codes per byte, 1 per byte (16-bit values), too many values (the byte tables)
+    else:  # random RGB networks: 3 values (2 bits), 16-bit values, too many event slots (the byte tables)
         acts = ("sigmoid", "sigmoid") if seed == 301 else ("tanh", "sigmoid")
         net = _random_network(rng, 3, 8, [hidden or int(rng.integers(3, 6))], 1, acts)
         plan = _random_plan(rng, net)
     fixed, flt = compile_lookup(net, plan), compile_float_lookup(net)
     coded = coded_table(fixed, flt)
-    assert (coded.log2_per_byte if coded is not None else None) == packing
+    assert (None if coded is None else "escape" if coded.escape is not None else "2-bit") == kind
     noisy = rng.integers(0, 256, (48, 80, 3), dtype=np.uint8)  # every pixel its own colour
+    if kind == "escape":  # some pixels take the second read
+        assert coded is not None and coded.escape is not None and (coded.escape[fixed.index(noisy)] >= 3).any()
     for frame in (noisy, *demo_frames(3, 80, 48)):
         rec = _frame_record(fixed, flt, frame)
         ref = emulate(net, plan, frame)  # the reference: the kernel itself on the frame's pixels

@@ -2,12 +2,15 @@
 
 For two classes, each colour's fixed decision, float decision and event bits form one value
 (bit 0 fixed, bit 1 float, bits 2.. the event slots). A network has few distinct values (the
-3-3-1 demo network: 9 over the 2^24 colours), so each colour keeps only the number of its
-value among the distinct ones: 2, 4 or 8 bits per colour (4, 8 or 16 MB). A frame is then one
-compiled pass that reads one code per pixel and counts codes (a histogram of at most 256 bins)
-and the channel sums; the positives, the disagreement and the per-slot event counts are read
-off the histogram afterwards. On a noisy frame (every pixel a different colour) the table
-reads are cache misses, so the table's size is the cost: no per-pixel branching on events.
+3-3-1 demo network under its plan: 12 over the 2^24 colours), so each colour keeps only the
+number of its value among the distinct ones, numbered from the most frequent: 2 bits per colour
+(a 4 MB table) for the three most frequent values, and for the rest an escape code that sends
+the colour to a byte table of every colour's code (16 MB, read only for those colours: 2.5 % of
+all colours for the demo plan). A frame is then one compiled pass that reads one code per pixel
+and counts codes (a histogram of at most 256 bins) and the channel sums; the positives, the
+disagreement and the per-slot event counts are read off the histogram afterwards. On a noisy
+frame (every pixel a different colour) the table reads are cache misses, so the size of the
+table read for most pixels is the cost: no per-pixel branching on events.
 
 Results are the same counts as the byte tables' gathers (tests compare on every frame).
 """
@@ -23,10 +26,12 @@ import numpy as np
 
 from .lookup import ColourLookup
 
-__all__ = ["CodedTable", "coded_table", "MAX_CODES"]
+__all__ = ["CodedTable", "coded_table", "MAX_CODES", "ESCAPE"]
 
 #: at most this many distinct (fixed, float, events) values get a coded table
 MAX_CODES = 256
+#: the 2-bit code that sends a colour to the byte table (:attr:`CodedTable.escape`)
+ESCAPE = 3
 
 _CACHE: OrderedDict[Any, CodedTable | None] = OrderedDict()
 _LOCK = threading.Lock()
@@ -34,12 +39,18 @@ _LOCK = threading.Lock()
 
 @dataclass(frozen=True, eq=False)
 class CodedTable:
-    """Dense codes per colour, packed ``per_byte`` = 1, 2 or 4 to a byte (little-endian within
-    the byte), and per code its value (bit 0 fixed, bit 1 float, bits 2.. event slots)."""
+    """Dense codes per colour, packed ``1 << log2_per_byte`` (1 or 4) to a byte (little-endian
+    within the byte), and per code its value (bit 0 fixed, bit 1 float, bits 2.. event slots).
+
+    Codes are numbered from the most frequent value. With more than four values the packed
+    table keeps 2 bits per colour (codes 0-2, and :data:`ESCAPE` for the rest) and ``escape``
+    holds every colour's code in a byte: only colours of the rarer values read it.
+    """
 
     table: np.ndarray
     log2_per_byte: int
     values: np.ndarray
+    escape: np.ndarray | None = None
 
     def counts(self, hist: np.ndarray, n_slots: int) -> tuple[int, int, int, np.ndarray]:
         """Positives (fixed, float), disagreements and per-slot counts from a histogram of codes."""
@@ -53,9 +64,9 @@ class CodedTable:
 
 
 def coded_table(fixed: ColourLookup, flt: ColourLookup) -> CodedTable | None:
-    """The coded table of a fixed and a float look-up (two classes, at most :data:`MAX_CODES`
-    distinct values), cached by value like the look-ups; None when it does not apply."""
-    if fixed.n_classes != 2 or len(fixed.event_slots) > 62 or fixed.size != flt.size:
+    """The coded table of a fixed and a float look-up (two classes, at most 14 event slots and
+    :data:`MAX_CODES` distinct values), cached by value like the look-ups; None when it does not apply."""
+    if fixed.n_classes != 2 or fixed.size != flt.size:
         return None
     key = (fixed.network.digest, fixed.plan, flt.network.digest, fixed.size)
     with _LOCK:
@@ -72,8 +83,9 @@ def coded_table(fixed: ColourLookup, flt: ColourLookup) -> CodedTable | None:
 
 def _make(fixed: ColourLookup, flt: ColourLookup) -> CodedTable | None:
     n_slots = len(fixed.event_slots)
-    dt = np.dtype(np.uint8 if n_slots <= 6 else np.uint16 if n_slots <= 14 else np.uint32 if n_slots <= 30
-                  else np.uint64)  # fmt: skip
+    if n_slots > 14:  # values of more than 16 bits: the per-pixel loop over the byte tables instead
+        return None
+    dt = np.dtype(np.uint8 if n_slots <= 6 else np.uint16)
     from . import _compiled
 
     kern = _compiled.kernels()
@@ -81,26 +93,29 @@ def _make(fixed: ColourLookup, flt: ColourLookup) -> CodedTable | None:
         return None
     combined = np.empty(fixed.size, dtype=dt)
     ev = fixed.events if fixed.events is not None and n_slots else np.zeros(1, dtype=np.uint8)
-    hist = np.zeros(1 << (8 * dt.itemsize) if dt.itemsize <= 2 else 0, dtype=np.int64)
+    hist = np.zeros(1 << (8 * dt.itemsize), dtype=np.int64)
     kern.combine(fixed.decisions, flt.decisions, ev, combined, hist)
-    if dt.itemsize <= 2:  # distinct values by counting: no sort of 2^24 entries
-        values = np.flatnonzero(hist)
-        if values.shape[0] > MAX_CODES:
-            return None
-        code_of = np.zeros(hist.shape[0], dtype=np.uint8)
-        code_of[values] = np.arange(values.shape[0], dtype=np.uint8)
-        codes = code_of.take(combined)
+    values = np.flatnonzero(hist)  # distinct values by counting: no sort of 2^24 entries
+    if values.shape[0] > MAX_CODES:
+        return None
+    values = values[np.argsort(-hist[values], kind="stable")]  # the most frequent values get the lowest codes
+    code_of = np.zeros(hist.shape[0], dtype=np.uint8)
+    code_of[values] = np.arange(values.shape[0], dtype=np.uint8)
+    codes = code_of.take(combined)
+    del combined
+    escape = None
+    if values.shape[0] > 4 and codes.shape[0] % 4 == 0:  # 2 bits per colour, code 3: read the byte table
+        escape = codes
+        table = _pack(np.minimum(codes, np.uint8(ESCAPE)), 2)
+        lg = 2
+    elif codes.shape[0] % 4 == 0:
+        table, lg = _pack(codes, 2), 2
     else:
-        uniq, inverse = np.unique(combined, return_inverse=True)
-        if uniq.shape[0] > MAX_CODES:
-            return None
-        values, codes = uniq, inverse.astype(np.uint8).reshape(-1)
-    n = values.shape[0]
-    lg = 2 if n <= 4 else 1 if n <= 16 else 0  # 4, 2 or 1 codes per byte
-    table = _pack(codes, lg) if codes.shape[0] % (1 << lg) == 0 else codes
-    lg = lg if table is not codes else 0
-    table.setflags(write=False)
-    return CodedTable(table, lg, np.asarray(values, dtype=np.uint64))
+        table, lg = codes, 0
+    for a in (table, escape):
+        if a is not None:
+            a.setflags(write=False)
+    return CodedTable(table, lg, np.asarray(values, dtype=np.uint64), escape)
 
 
 def _pack(codes: np.ndarray, lg: int) -> np.ndarray:

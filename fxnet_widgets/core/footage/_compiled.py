@@ -75,12 +75,14 @@ class _Kernels:
                 out_fl[i] = flt[c]
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
-        def frame_codes(rgb: np.ndarray, table: np.ndarray, lg: int, hist: np.ndarray,
+        def frame_codes(rgb: np.ndarray, table: np.ndarray, lg: int, escape: np.ndarray, hist: np.ndarray,
                         sums: np.ndarray) -> None:  # fmt: skip # pragma: no cover
-            # table: dense codes, 1 << lg per byte (see _coded): one read per pixel, a histogram of codes
+            # table: dense codes, 1 << lg per byte (see _coded); with 2-bit codes and an escape table
+            # (same length as the colours), code 3 means: read the colour's code from the escape table
             width = np.int32(8 >> lg)
             low = np.int32((1 << lg) - 1)
             mask = np.int32((1 << (8 >> lg)) - 1)
+            escaping = escape.shape[0] > 1
             s0 = 0
             s1 = 0
             s2 = 0
@@ -92,7 +94,10 @@ class _Kernels:
                 s1 += g
                 s2 += b
                 c = (r << 16) | (g << 8) | b
-                hist[(np.int32(table[c >> lg]) >> ((c & low) * width)) & mask] += 1
+                v = (np.int32(table[c >> lg]) >> ((c & low) * width)) & mask
+                if escaping and v == 3:
+                    v = np.int32(escape[c])
+                hist[v] += 1
             sums[0] += s0
             sums[1] += s1
             sums[2] += s2
@@ -107,8 +112,7 @@ class _Kernels:
                 if with_events:
                     v |= np.uint64(events[i]) << np.uint64(2)
                 out[i] = v
-                if hist.shape[0]:
-                    hist[v] += 1
+                hist[v] += 1
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def build(low_sum: np.ndarray, const: np.ndarray, h0: int, h1: int, weights: np.ndarray,

@@ -71,10 +71,11 @@ def _frame_record(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray) -> di
     events = _empty_events(fixed.network)
     kern = _kernels_for(arr, fixed)
     coded = coded_table(fixed, flt) if kern is not None else None
-    if kern is not None and coded is not None:  # one read per pixel from a 4-16 MB table of dense codes
+    if kern is not None and coded is not None:  # one read per pixel from a 4 MB table of 2-bit codes (rarely a second)
         hist = np.zeros(256, dtype=np.int64)
         sums = np.zeros(3, dtype=np.int64)
-        kern.frame_codes(arr.reshape(-1, 3), coded.table, coded.log2_per_byte, hist, sums)
+        escape = coded.escape if coded.escape is not None else np.zeros(1, dtype=np.uint8)
+        kern.frame_codes(arr.reshape(-1, 3), coded.table, coded.log2_per_byte, escape, hist, sums)
         pos_fx, pos_fl, differ, counts = coded.counts(hist, len(fixed.event_slots))
         by_slot = {s: int(c) for s, c in zip(fixed.event_slots, counts.tolist())}
         mean = (sums / max(n, 1)).tolist()
