@@ -475,26 +475,34 @@ def test_split_over_workers_gives_the_same_records(demo_clip):
 
 
 # -- the per-frame loop over the coded table: the same counts as emulate -------------------
-@pytest.mark.parametrize("seed, hidden, kind", [(0, 0, "escape"), (301, 0, "2-bit"), (302, 0, "escape"),
-                                                (403, 6, "escape"), (402, 6, None)])  # fmt: skip
+@pytest.mark.parametrize("seed, hidden, kind", [(0, 0, "escape"), (1, 0, "escape+blocks"), (301, 0, "2-bit+blocks"),
+                                                (302, 0, "escape+blocks"), (403, 6, "escape+blocks"),
+                                                (402, 6, None)])  # fmt: skip
 def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, kind):
     from fxnet_widgets.core.footage._coded import coded_table
     from fxnet_widgets.core.footage.analyse import _frame_record
 
     rng = np.random.default_rng(seed)
-    if seed == 0:  # the demo network, a narrow plan: 30 distinct values, 2-bit codes and the escape table
+    if seed in (0, 1):  # the demo network: a narrow plan (30 values, wrapping sums: few uniform blocks), its plan
         net = Network.load("assets/network.json")
-        plan = Plan.load("assets/plan.json", net).replace(acc_bits=13, out_bits=5)
+        plan = Plan.load("assets/plan.json", net)
+        plan = plan.replace(acc_bits=13, out_bits=5) if seed == 0 else plan
     else:  # random RGB networks: 3 values (2 bits), 16-bit values, too many event slots (the byte tables)
         acts = ("sigmoid", "sigmoid") if seed == 301 else ("tanh", "sigmoid")
         net = _random_network(rng, 3, 8, [hidden or int(rng.integers(3, 6))], 1, acts)
         plan = _random_plan(rng, net)
     fixed, flt = compile_lookup(net, plan), compile_float_lookup(net)
     coded = coded_table(fixed, flt)
-    assert (None if coded is None else "escape" if coded.escape is not None else "2-bit") == kind
+    got = None if coded is None else ("escape" if coded.escape is not None else "2-bit") + (
+        "+blocks" if coded.blocks is not None else "")  # fmt: skip
+    assert got == kind
     noisy = rng.integers(0, 256, (48, 80, 3), dtype=np.uint8)  # every pixel its own colour
-    if kind == "escape":  # some pixels take the second read
-        assert coded is not None and coded.escape is not None and (coded.escape[fixed.index(noisy)] >= 3).any()
+    if coded is not None and coded.escape is not None:  # some pixels take the second read
+        assert (coded.escape[fixed.index(noisy)] >= 3).any()
+    if coded is not None and coded.blocks is not None:  # some pixels are in mixed blocks, some in uniform ones
+        in_block = coded.blocks[((noisy[..., 0] >> 2).astype(np.int64) << 12) | ((noisy[..., 1] >> 2).astype(np.int64) << 6)
+                                | (noisy[..., 2] >> 2)]  # fmt: skip
+        assert (in_block == 255).any() and (in_block != 255).any()
     for frame in (noisy, *demo_frames(3, 80, 48)):
         rec = _frame_record(fixed, flt, frame)
         ref = emulate(net, plan, frame)  # the reference: the kernel itself on the frame's pixels

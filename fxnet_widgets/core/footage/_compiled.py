@@ -75,14 +75,16 @@ class _Kernels:
                 out_fl[i] = flt[c]
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
-        def frame_codes(rgb: np.ndarray, table: np.ndarray, lg: int, escape: np.ndarray, hist: np.ndarray,
-                        sums: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+        def frame_codes(rgb: np.ndarray, blocks: np.ndarray, table: np.ndarray, lg: int, escape: np.ndarray,
+                        hist: np.ndarray, sums: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # blocks (2^18, or length 1: none): the code of a 4 x 4 x 4 colour block, 255 when mixed;
             # table: dense codes, 1 << lg per byte (see _coded); with 2-bit codes and an escape table
             # (same length as the colours), code 3 means: read the colour's code from the escape table
             width = np.int32(8 >> lg)
             low = np.int32((1 << lg) - 1)
             mask = np.int32((1 << (8 >> lg)) - 1)
             escaping = escape.shape[0] > 1
+            blocked = blocks.shape[0] > 1
             s0 = 0
             s1 = 0
             s2 = 0
@@ -93,6 +95,11 @@ class _Kernels:
                 s0 += r
                 s1 += g
                 s2 += b
+                if blocked:
+                    v = np.int32(blocks[((r >> 2) << 12) | ((g >> 2) << 6) | (b >> 2)])
+                    if v != 255:
+                        hist[v] += 1
+                        continue
                 c = (r << 16) | (g << 8) | b
                 v = (np.int32(table[c >> lg]) >> ((c & low) * width)) & mask
                 if escaping and v == 3:
@@ -113,6 +120,24 @@ class _Kernels:
                     v |= np.uint64(events[i]) << np.uint64(2)
                 out[i] = v
                 hist[v] += 1
+
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def blocks(codes: np.ndarray, out: np.ndarray) -> int:  # pragma: no cover
+            # codes: 2^24 colour codes (r << 16 | g << 8 | b); out[block of 4 x 4 x 4]: the shared code or 255
+            for k in range(out.shape[0]):
+                out[k] = 254  # not seen yet
+            for c in range(codes.shape[0]):
+                k = ((c >> 18) << 12) | (((c >> 10) & 63) << 6) | ((c >> 2) & 63)
+                v = codes[c]
+                o = out[k]
+                if o == 254:
+                    out[k] = v
+                elif o != v:
+                    out[k] = 255
+            uniform = 0
+            for k in range(out.shape[0]):
+                uniform += out[k] != 255
+            return uniform
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def build(low_sum: np.ndarray, const: np.ndarray, h0: int, h1: int, weights: np.ndarray,
@@ -188,6 +213,7 @@ class _Kernels:
                 out[i] = o
 
         self.build = build
+        self.blocks = blocks
         self.combine = combine
         self.frame_codes = frame_codes
         self.compact = compact

@@ -71,11 +71,13 @@ def _frame_record(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray) -> di
     events = _empty_events(fixed.network)
     kern = _kernels_for(arr, fixed)
     coded = coded_table(fixed, flt) if kern is not None else None
-    if kern is not None and coded is not None:  # one read per pixel from a 4 MB table of 2-bit codes (rarely a second)
+    if kern is not None and coded is not None:  # most pixels: one read from 256 KB of colour blocks
         hist = np.zeros(256, dtype=np.int64)
         sums = np.zeros(3, dtype=np.int64)
-        escape = coded.escape if coded.escape is not None else np.zeros(1, dtype=np.uint8)
-        kern.frame_codes(arr.reshape(-1, 3), coded.table, coded.log2_per_byte, escape, hist, sums)
+        none = np.zeros(1, dtype=np.uint8)
+        blocks = coded.blocks if coded.blocks is not None else none
+        escape = coded.escape if coded.escape is not None else none
+        kern.frame_codes(arr.reshape(-1, 3), blocks, coded.table, coded.log2_per_byte, escape, hist, sums)
         pos_fx, pos_fl, differ, counts = coded.counts(hist, len(fixed.event_slots))
         by_slot = {s: int(c) for s, c in zip(fixed.event_slots, counts.tolist())}
         mean = (sums / max(n, 1)).tolist()
@@ -107,8 +109,8 @@ def _frame_record(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray) -> di
 class FootageAnalysis:
     """Per-frame records of one source under one plan (see the module text), with totals.
 
-    ``timing`` (seconds: look-up builds, decoding, analysis) varies between runs; everything
-    else is deterministic.
+    ``timing`` (seconds: look-up builds, decoding, analysis, and the analysis in CPU time of the
+    analysing thread) varies between runs; everything else is deterministic.
     """
 
     source: dict[str, Any]
@@ -312,7 +314,7 @@ def analyse_footage(
         stop = clip.info.frames if sl.stop is None else min(sl.stop, clip.info.frames)
         total = max(0, -(-(stop - sl.start) // sl.step))
     records: list[dict[str, Any]] = []
-    decode = analyse = 0.0
+    decode = analyse = analyse_cpu = 0.0
     cancelled = False
     it = iter(held) if held is not None else iter(clip) if clip is not None else iter(())
     masks = _Masks(labels if isinstance(labels, Footage) else open_footage(labels, frames)) if labels is not None \
@@ -328,7 +330,7 @@ def analyse_footage(
                 frame = next(it)
             except StopIteration:
                 break
-            tb = time.perf_counter()
+            tb, cb = time.perf_counter(), time.thread_time()
             rec = {"index": frame.index, "time_s": round(float(frame.time_s), 6),
                    **_frame_record(fixed, flt, frame.rgb)}  # fmt: skip
             if masks is not None:
@@ -342,6 +344,7 @@ def analyse_footage(
             tc = time.perf_counter()
             decode += tb - ta
             analyse += tc - tb
+            analyse_cpu += time.thread_time() - cb
             if on_frame is not None:
                 on_frame(len(records) - 1, rec)
             if progress is not None:
@@ -354,6 +357,7 @@ def analyse_footage(
         writer.close()
     if progress is not None and total and len(records) < total and not cancelled:
         progress(len(records), len(records))  # fewer frames than announced: finish the bar
-    timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse}
+    timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse,
+              "analyse_cpu_s": analyse_cpu}  # fmt: skip
     info = clip.info.to_dict() if clip is not None else dict(source_info or {})
     return FootageAnalysis(info, plan, network, records, cancelled, timing)
