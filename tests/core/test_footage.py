@@ -500,8 +500,8 @@ def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, kind):
     if coded is not None and coded.escape is not None:  # some pixels take the second read
         assert (coded.escape[fixed.index(noisy)] >= 3).any()
     if coded is not None and coded.blocks is not None:  # some pixels are in mixed blocks, some in uniform ones
-        in_block = coded.blocks[((noisy[..., 0] >> 2).astype(np.int64) << 12) | ((noisy[..., 1] >> 2).astype(np.int64) << 6)
-                                | (noisy[..., 2] >> 2)]  # fmt: skip
+        q = (noisy >> 2).astype(np.int64)
+        in_block = coded.blocks[(q[..., 0] << 12) | (q[..., 1] << 6) | q[..., 2]]
         assert (in_block == 255).any() and (in_block != 255).any()
     for frame in (noisy, *demo_frames(3, 80, 48)):
         rec = _frame_record(fixed, flt, frame)
