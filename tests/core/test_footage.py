@@ -525,6 +525,9 @@ def test_float_lookup_equals_predict_on_every_colour(seed):
     acts = [("sigmoid", "sigmoid"), ("relu", "tanh"), ("tanh", "identity"), ("identity", "relu")][seed // 2 % 4]
     n_out = 1 if seed % 3 else 3
     net = _random_network(rng, n_in, bits, [int(rng.integers(2, 12))], n_out, acts)
+    if seed % 2:  # inputs scaled by 1 / (2^bits - 1) (not exact in binary)
+        net = Network.from_dict({**net.to_dict(), "input": {**net.to_dict()["input"], "scale": "full"}})
+    assert net.input_scale == ("full" if seed % 2 else "pow2")
     colours = np.stack(np.unravel_index(np.arange(1 << (n_in * bits)), (1 << bits,) * n_in), axis=1)
     out64 = net.predict(colours)  # the reference of the semantics: float64 forward pass
     assert np.array_equal(compile_float_lookup(net).decisions, net.decide(out64))

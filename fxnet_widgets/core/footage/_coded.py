@@ -75,6 +75,12 @@ class CodedTable:
         return int(h @ fx), int(h @ fl), int(h @ (fx ^ fl)), slots
 
 
+def clear() -> None:
+    """Forget the cached tables."""
+    with _LOCK:
+        _CACHE.clear()
+
+
 def coded_table(fixed: ColourLookup, flt: ColourLookup) -> CodedTable | None:
     """The coded table of a fixed and a float look-up (two classes, at most 14 event slots and
     :data:`MAX_CODES` distinct values), cached by value like the look-ups; None when it does not apply."""

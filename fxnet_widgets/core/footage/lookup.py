@@ -64,9 +64,12 @@ _LOCK = threading.Lock()
 
 
 def clear_lookup_cache() -> None:
-    """Forget every cached table."""
+    """Forget every cached table (the look-ups and the per-frame tables made from them)."""
     with _LOCK:
         _CACHE.clear()
+    from . import _coded
+
+    _coded.clear()
 
 
 @dataclass(frozen=True, eq=False)
