@@ -150,8 +150,20 @@ class _Kernels:
             # per-neuron tables that post_accumulate made over each sum interval, step 8
             n_layers = sizes.shape[0]
             width = 1
+            n_all = 0
             for k in range(n_layers):
                 width = max(width, sizes[k])
+                n_all += sizes[k]
+            # evm[8 g + e]: the bits in ``events`` of neuron g's event set e (no branch per event)
+            evm = np.zeros(8 * n_all, dtype=np.uint64)
+            for g in range(n_all):
+                for e in range(8):
+                    m = np.uint64(0)
+                    for b in range(3):
+                        if (e >> b) & 1:
+                            m |= np.uint64(1) << np.uint64(pos[3 * g + b])
+                    evm[8 * g + e] = m
+            seen_or = np.zeros(n_all, dtype=np.uint8)
             cur = np.zeros(width, dtype=np.int64)
             nxt = np.zeros(width, dtype=np.int64)
             n_low = low_sum.shape[0]  # low_sum: (colours of the low inputs, n1), const: (combinations, n1)
@@ -164,11 +176,8 @@ class _Kernels:
                         d = low_sum[l, j] + const[h, j] - lo[j]
                         cur[j] = tab_codes[toff[j] + d]
                         e = tab_bits[toff[j] + d]
-                        if e:
-                            seen[j] |= e
-                            for b in range(3):
-                                if (e >> b) & 1:
-                                    ev |= np.uint64(1) << np.uint64(pos[3 * j + b])
+                        seen_or[j] |= e
+                        ev |= evm[8 * j + e]
                     n_prev = n1
                     for k in range(1, n_layers):
                         nk = sizes[k]
@@ -181,11 +190,8 @@ class _Kernels:
                             d = acc - lo[g]
                             nxt[j] = tab_codes[toff[g] + d]
                             e = tab_bits[toff[g] + d]
-                            if e:
-                                seen[g] |= e
-                                for b in range(3):
-                                    if (e >> b) & 1:
-                                        ev |= np.uint64(1) << np.uint64(pos[3 * g + b])
+                            seen_or[g] |= e
+                            ev |= evm[8 * g + e]
                         for j in range(nk):
                             cur[j] = nxt[j]
                         n_prev = nk
@@ -202,6 +208,8 @@ class _Kernels:
                             codes_out[idx, j] = cur[j]
                     if keep_events:
                         events[idx] = ev
+            for g in range(n_all):
+                seen[g] |= seen_or[g]
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def compact(events: np.ndarray, active: np.ndarray, out: np.ndarray) -> None:  # pragma: no cover
