@@ -164,50 +164,69 @@ class _Kernels:
                             m |= np.uint64(1) << np.uint64(pos[3 * g + b])
                     evm[8 * g + e] = m
             seen_or = np.zeros(n_all, dtype=np.uint8)
-            cur = np.zeros(width, dtype=np.int64)
-            nxt = np.zeros(width, dtype=np.int64)
+            # layer at a time over the n_low colours of one value h of the high inputs: tight loops
             n_low = low_sum.shape[0]  # low_sum: (colours of the low inputs, n1), const: (combinations, n1)
             n1 = sizes[0]
+            cur = np.zeros((width, n_low), dtype=np.int32)  # codes: at most 16 bits
+            nxt = np.zeros((width, n_low), dtype=np.int32)
+            evs = np.zeros(n_low, dtype=np.uint64)
+            acc = np.zeros(n_low, dtype=np.int64)
             for h in range(h0, h1):
                 for l in range(n_low):
-                    idx = h * n_low + l
-                    ev = np.uint64(0)
-                    for j in range(n1):
-                        d = low_sum[l, j] + const[h, j] - lo[j]
-                        cur[j] = tab_codes[toff[j] + d]
-                        e = tab_bits[toff[j] + d]
-                        seen_or[j] |= e
-                        ev |= evm[8 * j + e]
-                    n_prev = n1
-                    for k in range(1, n_layers):
-                        nk = sizes[k]
-                        for j in range(nk):
-                            acc = biases[goff[k] + j]
-                            base = woff[k] + j * n_prev
-                            for i in range(n_prev):
-                                acc += weights[base + i] * cur[i]
-                            g = goff[k] + j
-                            d = acc - lo[g]
-                            nxt[j] = tab_codes[toff[g] + d]
-                            e = tab_bits[toff[g] + d]
-                            seen_or[g] |= e
-                            ev |= evm[8 * g + e]
-                        for j in range(nk):
-                            cur[j] = nxt[j]
-                        n_prev = nk
-                    if n_prev == 1:
-                        decisions[idx] = 1 if cur[0] >= thr else 0
-                    else:
+                    evs[l] = 0
+                for j in range(n1):
+                    base = const[h, j] - lo[j] + toff[j]
+                    m = np.uint8(0)
+                    for l in range(n_low):
+                        d = low_sum[l, j] + base
+                        cur[j, l] = tab_codes[d]
+                        e = tab_bits[d]
+                        m |= e
+                        evs[l] |= evm[8 * j + e]
+                    seen_or[j] |= m
+                n_prev = n1
+                for k in range(1, n_layers):
+                    nk = sizes[k]
+                    for j in range(nk):
+                        g = goff[k] + j
+                        wb = woff[k] + j * n_prev
+                        bias = biases[g] - lo[g] + toff[g]
+                        for l in range(n_low):
+                            acc[l] = bias
+                        for i in range(n_prev):
+                            wi = weights[wb + i]
+                            for l in range(n_low):
+                                acc[l] += wi * cur[i, l]
+                        m = np.uint8(0)
+                        for l in range(n_low):
+                            d = acc[l]
+                            nxt[j, l] = tab_codes[d]
+                            e = tab_bits[d]
+                            m |= e
+                            evs[l] |= evm[8 * g + e]
+                        seen_or[g] |= m
+                    for j in range(nk):
+                        for l in range(n_low):
+                            cur[j, l] = nxt[j, l]
+                    n_prev = nk
+                start = h * n_low
+                if n_prev == 1:
+                    for l in range(n_low):
+                        decisions[start + l] = 1 if cur[0, l] >= thr else 0
+                else:
+                    for l in range(n_low):
                         best = 0
                         for j in range(1, n_prev):
-                            if cur[j] > cur[best]:
+                            if cur[j, l] > cur[best, l]:
                                 best = j
-                        decisions[idx] = best
-                    if keep_codes:
+                        decisions[start + l] = best
+                if keep_codes:
+                    for l in range(n_low):
                         for j in range(n_prev):
-                            codes_out[idx, j] = cur[j]
-                    if keep_events:
-                        events[idx] = ev
+                            codes_out[start + l, j] = cur[j, l]
+                if keep_events:
+                    for l in range(n_low):
+                        events[start + l] = evs[l]
             for g in range(n_all):
                 seen[g] |= seen_or[g]
 
