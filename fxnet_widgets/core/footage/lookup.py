@@ -17,7 +17,9 @@ frame with one gather per pixel. :func:`compile_lookup` builds that table:
   x 2 or 4 bytes), the build may hold the event table once more (when some reachable event never
   happens and its bit is dropped), 5 bytes
   per integer of each neuron's sum interval (at most :data:`~._build.DOMAIN_MAX` = 2^22
-  integers, 20 MB; wider intervals are evaluated directly), and, on the numpy path, chunks of
+  integers, 20 MB; wider intervals are evaluated directly), on the compiled path
+  ``(8 x widest layer + 16)`` bytes per colour of the low inputs (at most 2^16 colours: 1.5 MiB
+  for the demo network), and, on the numpy path, chunks of
   :data:`CHUNK_COLOURS` colours (about 64 bytes x 2^17 x the widest layer: 8 MB per neuron).
   Measured for the 3-3-1 demo network: 44 MiB at the peak, tables included
   (``benchmarks/bench_footage.py``, tracemalloc);
