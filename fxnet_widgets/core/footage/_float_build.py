@@ -35,8 +35,9 @@ __all__ = ["CHUNK", "build_float_decisions", "error_bound", "float32_chunk"]
 CHUNK = 1 << 16
 _U32 = 2.0**-24  # unit roundoff of float32 (IEEE 754 binary32: 24-bit significand)
 _U64 = 2.0**-53  # unit roundoff of float64 (IEEE 754 binary64: 53-bit significand)
-#: error budget of float32 exp/tanh in units of the roundoff: 8, where NumPy documents a few
-#: ulp for its vectorised float32 exp (from memory: about 2.5 ulp, NumPy 1.18 release notes)
+#: error budget of exp/tanh (and of sigmoid's add and divide) in units of the roundoff, where NumPy
+#: documents a few ulp for its vectorised float32 exp (from memory: about 2.5 ulp, NumPy 1.18 release
+#: notes); the tests check the whole bound against predict on every colour of small networks
 _FUNC_ULPS = 16.0
 _LIPSCHITZ = {"sigmoid": 0.25, "tanh": 1.0, "relu": 1.0, "identity": 1.0}
 
