@@ -47,6 +47,7 @@ __all__ = [
     "write_demo",
     "demo_class_table",
     "DEMO_FILES",
+    "DEMO_CLIP",
 ]
 
 #: seeds of the demo: training scene, test scene, training
@@ -62,6 +63,8 @@ DEMO_FILES = (
     "scene-test.png",
     "scene-test-mask.png",
 )
+#: the generated belt clip (``clip=True``; ``fxnet demo`` writes it, ``assets/`` does not hold it)
+DEMO_CLIP = "belt-clip.mkv"
 #: extra files of ``assets/`` (``class_maps=True``)
 CLASS_MAP_FILES = ("scene-train-classes.png", "scene-test-classes.png", "classes.json")
 
@@ -146,9 +149,11 @@ def build_demo() -> Demo:
 
 
 def write_demo(
-    directory: str | os.PathLike[str], *, class_maps: bool = False, demo: Demo | None = None
+    directory: str | os.PathLike[str], *, class_maps: bool = False, demo: Demo | None = None,
+    clip: bool = False,
 ) -> Demo:
-    """Write :data:`DEMO_FILES` (and with ``class_maps`` the class maps and table).
+    """Write :data:`DEMO_FILES` (and with ``class_maps`` the class maps and table, with ``clip``
+    the belt clip :data:`DEMO_CLIP` of :func:`~fxnet_widgets.core.footage.write_demo_clip`).
 
     Every file is written atomically; the directory must exist.
     """
@@ -166,4 +171,8 @@ def write_demo(
         save_png(d / "scene-train-classes.png", demo.train_scene.class_map)
         save_png(d / "scene-test-classes.png", demo.test_scene.class_map)
         demo_class_table().save(d / "classes.json")
+    if clip:
+        from .footage import write_demo_clip
+
+        write_demo_clip(d / DEMO_CLIP)
     return demo

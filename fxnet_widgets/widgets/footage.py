@@ -7,6 +7,13 @@ timeline of the pixels that differ from float and of the events per frame (click
 jump there), a frame slider with a play button, the frame and the fixed-vs-float difference.
 When the explorer's plan changes the timeline is recomputed (progress shown); until it is
 done the panel says that what it shows belongs to another plan.
+
+The explorer follows the frame: moving the slider (or play, or a click on the timeline) gives
+the session that frame as its image (with its label mask when the panel has labels), through
+:meth:`Session.set_image <fxnet_widgets.widgets.data.replace_image>` and the session's normal
+update loop, so the preview, metrics, events and histograms all show it; the panel says which
+frame the explorer shows. Unticking "explorer follows the frame", or closing the panel, gives
+the session back the image it had before.
 """
 
 from __future__ import annotations
@@ -45,6 +52,12 @@ class FootagePanel(w.VBox):
         ``"A:B:S"`` frame range and stride.
     background
         Recompute in a thread (default); False computes at once (tests, scripts).
+    labels
+        Label masks of the frames (a video or image folder, same frame indices, white = positive):
+        the explorer gets each frame's mask as its image labels (class 1 where the first channel
+        is at least 128), so its metrics show accuracy on the frame.
+    follow
+        Start with the explorer following the frame (default True).
 
     Attributes
     ----------
@@ -54,10 +67,12 @@ class FootagePanel(w.VBox):
     timeline : bqplot.Figure with ``differ_line``, ``events_line``, ``points`` (click to jump), ``cursor``
     frame_image, diff_image : ipywidgets.Image (PNG of the frame; the frame dimmed, disagreement coloured)
     progress : ipywidgets.IntProgress; status : ipywidgets.HTML
+    follow : ipywidgets.Checkbox (the explorer shows the current frame); explorer_note : ipywidgets.HTML
     """
 
     def __init__(self, explorer: Any, source: str | os.PathLike[str], frames: str | None = None, *,
-                 background: bool = True, width: int = 320, **kwargs: Any) -> None:  # fmt: skip
+                 background: bool = True, width: int = 320, labels: str | os.PathLike[str] | None = None,
+                 follow: bool = True, **kwargs: Any) -> None:  # fmt: skip
         session = getattr(explorer, "session", explorer)
         if not isinstance(session, Session):
             raise TypeError(f"explorer must be an Explorer or a Session, not {type(explorer).__name__}")
@@ -71,6 +86,12 @@ class FootagePanel(w.VBox):
                              f"for the panel, not about {info.frames}; give a frame range or stride")  # fmt: skip
         self.frames = clip.read()
         self.info = info
+        self._masks: dict[int, np.ndarray] | None = None
+        if labels is not None:
+            self._masks = {m.index: np.asarray(m.rgb[..., 0] >= 128).astype(np.uint8)
+                           for m in open_footage(labels, frames).read()}  # fmt: skip
+        self._original = session.data  # given back when following stops or the panel closes
+        self._following: int | None = None
         self.result: FootageAnalysis | None = None
         self._thread: threading.Thread | None = None
         self._cancel = threading.Event()
@@ -87,6 +108,8 @@ class FootagePanel(w.VBox):
         self.diff_image = w.Image(format="png", layout=w.Layout(**lay))
         self.caption = w.HTML()
         self.status = w.HTML()
+        self.follow = w.Checkbox(value=bool(follow), description="explorer follows the frame", indent=False)
+        self.explorer_note = w.HTML()
         self.progress = w.IntProgress(value=0, min=0, max=max(1, n), description="timeline",
                                       layout=w.Layout(width="420px"))  # fmt: skip
         # the timeline
@@ -115,9 +138,13 @@ class FootagePanel(w.VBox):
                  w.VBox([w.HTML("<b>where fixed point and float differ</b>"), self.diff_image])]  # fmt: skip
         wrap = w.Layout(flex_flow="row wrap", align_items="flex-start")
         super().__init__([self.status, self.timeline, w.HBox([self.play, self.slider]), self.progress,
-                          w.HBox(cells, layout=wrap), self.caption], **kwargs)  # fmt: skip
-        self.slider.observe(lambda _: self._show_frame(), "value")
-        session.observe(lambda _: self.recompute(), "plan")
+                          w.HBox([self.follow, self.explorer_note]), w.HBox(cells, layout=wrap), self.caption],
+                         **kwargs)  # fmt: skip
+        self.slider.observe(lambda _: self._slider_moved(), "value")
+        self.follow.observe(lambda _: self._follow_changed(), "value")
+        self._on_plan = lambda _: self.recompute()
+        session.observe(self._on_plan, "plan")
+        self._follow_changed()
         self.recompute()
 
     # -- computing (in the core, possibly in a thread) -----------------------------------
@@ -219,6 +246,68 @@ class FootagePanel(w.VBox):
         self.caption.value = (f"frame {rec['index']} at {rec['time_s']:.3f} s: {rec['differ']} of {rec['pixels']} "
                               f"pixels differ from float, {ev} events{plan_note}")  # fmt: skip
 
+    # -- the explorer follows the frame ------------------------------------------------
+    def frame_note(self, position: int) -> str:
+        """How the explorer names the frame at ``position`` (its image note)."""
+        f = self.frames[position]
+        return f"frame {f.index} at {f.time_s:.3f} s of {os.path.basename(str(self.info.source))}"
+
+    @property
+    def explorer_frame(self) -> int | None:
+        """The position of the frame the explorer shows now, or None (it shows another image)."""
+        i = self._following
+        if i is None or self.session.image_note != self.frame_note(i):
+            return None
+        return i
+
+    def _slider_moved(self) -> None:
+        if self.follow.value:
+            self._show_in_explorer(int(self.slider.value))
+        self._show_frame()
+
+    def _show_in_explorer(self, i: int) -> None:
+        f = self.frames[i]
+        mask = self._masks.get(f.index) if self._masks is not None else None
+        with self.session.deferred():  # from the page: coalesced, the latest frame wins
+            self.session.set_image(f.rgb, mask, self.frame_note(i))
+        self._following = i
+        self._say_explorer()
+
+    def _follow_changed(self) -> None:
+        if self.follow.value and self.frames:
+            self._show_in_explorer(int(self.slider.value))
+        else:
+            self._give_back()
+
+    def _give_back(self) -> None:
+        if self._following is not None:
+            self._following = None
+            if self.session.data is not self._original:
+                self.session.set_image(self._original)
+        self._say_explorer()
+
+    def _say_explorer(self) -> None:
+        i = self.explorer_frame
+        if i is None:
+            self.explorer_note.value = "the explorer shows its own image, not a frame of the clip"
+            return
+        labels = ""
+        if self._masks is not None:
+            has = self.frames[i].index in self._masks
+            labels = ", with its labels" if has else ", no label mask for this frame"
+        self.explorer_note.value = f"the explorer shows <b>{html.escape(self.frame_note(i))}</b>{labels}"
+
+    def close(self) -> None:
+        """Stop the background run, stop following the plan, give the explorer its image back, close."""
+        if hasattr(self, "_on_plan"):  # (a panel whose construction failed has nothing to stop)
+            self._cancel.set()
+            try:
+                self.session.unobserve(self._on_plan, "plan")
+            except ValueError:
+                pass
+            self._give_back()
+        super().close()
+
     def frame_difference(self, position: int) -> tuple[np.ndarray, np.ndarray]:
         """Fixed-point and float decisions of the frame at ``position``, under the timeline's plan."""
         r = self.result
@@ -233,5 +322,7 @@ class FootagePanel(w.VBox):
             return "footage: timeline not computed yet"
         i = int(self.slider.value)
         rec = self.result.frames[i]
+        shown = self.explorer_frame
         return (self.result.summary() + f"\n  current frame {rec['index']}: {rec['differ']} pixels differ"
-                + ("\n  stale: computed for another plan than the explorer's" if self.stale else ""))
+                + ("\n  stale: computed for another plan than the explorer's" if self.stale else "")
+                + (f"\n  the explorer shows {self.frame_note(shown)}" if shown is not None else ""))

@@ -53,7 +53,7 @@ from ..core.starting import starting_plan, suggest_plan
 from ..render.raster import MAX_PREVIEW_WIDTH
 from . import parts, swap
 from .binning import BinCounter, neuron_results
-from .data import SessionData
+from .data import SessionData, replace_image
 from .results import SessionResult, layer_kind
 from .text import summary_text
 
@@ -411,6 +411,8 @@ class Session(t.HasTraits):
 
     #: ``session.use_network(net)``: compute with ``net`` from now on (same layout; :func:`.swap.use_network`)
     use_network = swap.use_network
+    #: ``set_image(image, image_labels=None, note=None)``: another image, one update (:func:`.data.replace_image`)
+    set_image = replace_image
 
     def refresh(self) -> None:
         """Recompute and redraw every view (e.g. after a view was fixed)."""

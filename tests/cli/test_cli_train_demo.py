@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from fxnet_widgets.cli import main
-from fxnet_widgets.core.demo import CLASS_MAP_FILES, DEMO_FILES
+from fxnet_widgets.core.demo import CLASS_MAP_FILES, DEMO_CLIP, DEMO_FILES
 from fxnet_widgets.core.images import read_image, save_png
 from fxnet_widgets.core.network import Network
 from fxnet_widgets.core.plan import Plan
@@ -91,7 +91,8 @@ def test_demo_writes_the_scenario(tmp_path):
     code, out, err = run("demo", "-o", tmp_path / "demo", "--json")
     assert code == 0, err
     summary = json.loads(out)
-    assert sorted(p.name for p in (tmp_path / "demo").iterdir()) == sorted(DEMO_FILES)
+    assert sorted(p.name for p in (tmp_path / "demo").iterdir()) == sorted([*DEMO_FILES, DEMO_CLIP])
+    assert summary["files"] == [*DEMO_FILES, DEMO_CLIP]
     assert summary["float_accuracy"] >= 0.97 and summary["disagreement"] <= 0.01
     assert summary["events"]["acc_overflow"] == 0
     net = Network.load(tmp_path / "demo" / "network.json")
@@ -104,7 +105,7 @@ def test_demo_text_summary_and_errors(tmp_path, capsys):
     out = capsys.readouterr().out.splitlines()
     assert out[1].startswith("test scene (cool daylight, top right, dimmer): float accuracy ")
     assert out[2].startswith("plan: fixed-vs-float disagreement ")
-    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(DEMO_FILES + CLASS_MAP_FILES)
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted([*DEMO_FILES, DEMO_CLIP, *CLASS_MAP_FILES])
     (tmp_path / "file").write_text("x")
     assert main(["demo", "-o", str(tmp_path / "file")]) == 2
     assert capsys.readouterr().err == f"fxnet: {tmp_path / 'file'}: exists and is not a directory\n"
@@ -112,3 +113,24 @@ def test_demo_text_summary_and_errors(tmp_path, capsys):
     assert (
         capsys.readouterr().err == f"fxnet: {tmp_path / 'no' / 'dir'}: the directory {tmp_path / 'no'} does not exist\n"
     )
+
+
+def test_demo_clip_is_regenerated_byte_for_byte(tmp_path):
+    """The clip ``fxnet demo`` writes: the same bytes when written again, under 2 MB, and the
+    frames of the scene generator exactly (FFV1 is lossless, RFC 9043); frame count and rate
+    as PyAV/FFmpeg report them."""
+    av = pytest.importorskip("av")
+    from fxnet_widgets.core.footage import demo_frames, write_demo_clip
+    from fxnet_widgets.core.footage.democlip import DEMO_RATE
+
+    assert main(["demo", "-o", str(tmp_path / "demo")]) == 0
+    written = (tmp_path / "demo" / DEMO_CLIP).read_bytes()
+    again = open(write_demo_clip(tmp_path / "again.mkv"), "rb").read()
+    assert written == again and len(written) < 2 * 2**20
+    with av.open(str(tmp_path / "demo" / DEMO_CLIP)) as c:
+        st = c.streams.video[0]
+        assert float(st.average_rate) == DEMO_RATE == 25
+        decoded = [f.to_ndarray(format="rgb24") for f in c.decode(st)]
+    frames = demo_frames()
+    assert len(decoded) == len(frames) == 40
+    assert all(np.array_equal(a, b) for a, b in zip(decoded, frames))

@@ -472,3 +472,85 @@ def test_split_over_workers_gives_the_same_records(demo_clip):
         with distributed.Client(cluster) as client:
             parts = analyse_footage_split(net, plan, demo_clip, client, frames="1:12:2")
     assert parts.frames == whole.frames and parts.to_dict() == whole.to_dict()
+
+
+# -- the per-frame loop over the coded table: the same counts as emulate -------------------
+@pytest.mark.parametrize("seed, hidden, kind", [(0, 0, "escape"), (1, 0, "escape+blocks"), (301, 0, "2-bit+blocks"),
+                                                (302, 0, "escape+blocks"), (403, 6, "escape+blocks"),
+                                                (402, 6, None)])  # fmt: skip
+def test_frame_records_over_the_coded_table_equal_emulate(seed, hidden, kind):
+    from fxnet_widgets.core.footage._coded import coded_table
+    from fxnet_widgets.core.footage.analyse import _frame_record
+
+    rng = np.random.default_rng(seed)
+    if seed in (0, 1):  # the demo network: a narrow plan (30 values, wrapping sums: few uniform blocks), its plan
+        net = Network.load("assets/network.json")
+        plan = Plan.load("assets/plan.json", net)
+        plan = plan.replace(acc_bits=13, out_bits=5) if seed == 0 else plan
+    else:  # random RGB networks: 3 values (2 bits), 16-bit values, too many event slots (the byte tables)
+        acts = ("sigmoid", "sigmoid") if seed == 301 else ("tanh", "sigmoid")
+        net = _random_network(rng, 3, 8, [hidden or int(rng.integers(3, 6))], 1, acts)
+        plan = _random_plan(rng, net)
+    fixed, flt = compile_lookup(net, plan), compile_float_lookup(net)
+    coded = coded_table(fixed, flt)
+    got = None if coded is None else ("escape" if coded.escape is not None else "2-bit") + (
+        "+blocks" if coded.blocks is not None else "")  # fmt: skip
+    assert got == kind
+    noisy = rng.integers(0, 256, (48, 80, 3), dtype=np.uint8)  # every pixel its own colour
+    if coded is not None and coded.escape is not None:  # some pixels take the second read
+        assert (coded.escape[fixed.index(noisy)] >= 3).any()
+    if coded is not None and coded.blocks is not None:  # some pixels are in mixed blocks, some in uniform ones
+        q = (noisy >> 2).astype(np.int64)
+        in_block = coded.blocks[(q[..., 0] << 12) | (q[..., 1] << 6) | q[..., 2]]
+        assert (in_block == 255).any() and (in_block != 255).any()
+    for frame in (noisy, *demo_frames(3, 80, 48)):
+        rec = _frame_record(fixed, flt, frame)
+        ref = emulate(net, plan, frame)  # the reference: the kernel itself on the frame's pixels
+        assert rec["differ"] == ref.mismatch
+        assert rec["positive_fixed"] == int(np.count_nonzero(ref.decisions == 1))
+        assert rec["positive_float"] == int(np.count_nonzero(ref.float_decisions == 1))
+        for name in ("acc_overflow", "table_low", "table_high"):
+            assert rec["events"][name] == [e[name].tolist() for e in ref.events]
+        assert rec["mean_rgb"] == pytest.approx(frame.reshape(-1, 3).mean(axis=0), abs=1e-4)
+
+
+# -- the float look-up: predict's decisions, float32 chunks checked against the float64 reference --
+@pytest.mark.parametrize("seed", range(8))
+def test_float_lookup_equals_predict_on_every_colour(seed):
+    from fxnet_widgets.core.footage._float_build import _parts, error_bound, float32_chunk
+
+    clear_lookup_cache()
+    rng = np.random.default_rng(700 + seed)
+    n_in, bits = [(3, 4), (2, 6), (3, 5), (1, 12)][seed % 4]
+    acts = [("sigmoid", "sigmoid"), ("relu", "tanh"), ("tanh", "identity"), ("identity", "relu")][seed // 2 % 4]
+    n_out = 1 if seed % 3 else 3
+    net = _random_network(rng, n_in, bits, [int(rng.integers(2, 12))], n_out, acts)
+    if seed % 2:  # inputs scaled by 1 / (2^bits - 1) (not exact in binary)
+        net = Network.from_dict({**net.to_dict(), "input": {**net.to_dict()["input"], "scale": "full"}})
+    assert net.input_scale == ("full" if seed % 2 else "pow2")
+    colours = np.stack(np.unravel_index(np.arange(1 << (n_in * bits)), (1 << bits,) * n_in), axis=1)
+    out64 = net.predict(colours)  # the reference of the semantics: float64 forward pass
+    assert np.array_equal(compile_float_lookup(net).decisions, net.decide(out64))
+    # the error bound holds on every colour (the float32 outputs against predict's float64 ones)
+    low32, high32 = _parts(net)
+    out32 = float32_chunk(net, low32, high32, 0, high32.shape[0]).T.astype(np.float64)
+    assert np.all(np.abs(out32 - out64) <= error_bound(net)[None, :])
+
+
+def test_float_lookup_on_the_boundary_and_rgb8_samples():
+    clear_lookup_cache()
+    # zero weights: every colour's output is sigmoid(0) = 0.5 exactly, the threshold: all go to predict
+    flat = Network.from_layers([(np.zeros((1, 3)), [0.0], "sigmoid")], input_bits=4)
+    assert flat.threshold == 0.5
+    lut = compile_float_lookup(flat)
+    assert lut.decisions.tolist() == [1] * 4096  # 0.5 >= 0.5 (Network.decide: ">= threshold")
+    # three equal outputs: argmax ties go to the lowest index, as numpy.argmax (predict + decide)
+    tie = Network.from_layers([(np.ones((3, 3)), [0.0] * 3, "identity")], input_bits=4)
+    assert not compile_float_lookup(tie).decisions.any()
+    # the demo network over 8-bit RGB: sampled colours against predict
+    net = Network.load("assets/network.json")
+    lut = compile_float_lookup(net)
+    rng = np.random.default_rng(9)
+    sample = rng.integers(0, 256, (200_000, 3))
+    idx = (sample[:, 0] << 16) | (sample[:, 1] << 8) | sample[:, 2]
+    assert np.array_equal(lut.decisions[idx], net.decide(net.predict(sample)))

@@ -70,3 +70,76 @@ def test_plan_change_recomputes_and_says_stale_meanwhile(session, clip, fruit_pl
 def test_rejects_what_is_not_a_session(clip):
     with pytest.raises(TypeError, match=r"^explorer must be an Explorer or a Session, not str$"):
         FootagePanel("explorer", clip)
+
+
+# -- the explorer follows the frame ---------------------------------------------------------
+def test_explorer_views_follow_the_frame_and_get_their_image_back(session, clip, tmp_path):
+    from fxnet_widgets.core.images import save_png
+
+    frames = demo_frames(N, W, H)
+    masks = tmp_path / "masks"
+    masks.mkdir()
+    for i, f in enumerate(frames[:-1]):  # no mask for the last frame
+        save_png(masks / f"{i}.png", (emulate(session.network, session.plan, f).float_decisions * 255).astype(np.uint8))
+    before = session.data
+    seen = []
+    session.add_view("probe", lambda r: seen.append(r.image.codes.shape if r.image is not None else None))
+    panel = FootagePanel(session, clip, background=False, labels=masks)
+    for i in (0, 3, N - 1):
+        panel.slider.value = i
+        r = session.result  # the session's own update loop computed it: every view got this result
+        assert np.array_equal(session.image, frames[i]) and seen[-1] == frames[i].shape
+        # the explorer's arrays are emulate's on that frame (the reference: the kernel itself)
+        e = emulate(session.network, session.plan, r.image.codes)
+        assert np.array_equal(r.image.fixed, e.decisions) and np.array_equal(r.image.float_, e.float_decisions)
+        assert r.generation == session.version or not session.pending
+        assert panel.explorer_frame == i and f"frame {i} at {i / 25:.3f} s of belt.mkv" in panel.explorer_note.value
+        if i < N - 1:  # the mask of the frame: the float network's own decisions, so float accuracy is 1
+            assert np.array_equal(session.image_labels, e.float_decisions)
+            assert "with its labels" in panel.explorer_note.value
+        else:
+            assert session.image_labels is None and "no label mask for this frame" in panel.explorer_note.value
+    assert f"the explorer shows frame {N - 1}" in panel.summary()
+    panel._clicked(panel.points, {"data": {"index": 2}})  # a click on the timeline moves the explorer too
+    assert panel.explorer_frame == 2 and np.array_equal(session.image, frames[2])
+    panel.follow.value = False  # unticked: the explorer gets its own image back
+    assert session.data is before and np.array_equal(session.result.image.codes, before.image)
+    assert panel.explorer_frame is None and "its own image" in panel.explorer_note.value
+    panel.slider.value = 4  # not following: the explorer keeps its image
+    assert session.data is before
+    panel.follow.value = True
+    assert panel.explorer_frame == 4
+    panel.close()  # closed: its image back, and plan changes no longer start a timeline
+    assert session.data is before and session.image_note == before.image_note
+    session.plan = session.plan.replace(out_bits=5)
+    assert panel.result is not None and panel.result.plan != session.plan
+
+
+def test_a_bad_frame_image_leaves_the_session_as_it_was(session):
+    before = session.data
+    with pytest.raises(ValueError, match=r"image must have 3 channels, not 2$"):
+        session.set_image(np.zeros((4, 4, 2), np.uint8))
+    with pytest.raises(ValueError, match=r"^image_labels must have the image's shape \(4, 4\), not \(2, 2\)$"):
+        session.set_image(np.zeros((4, 4, 3), np.uint8), np.zeros((2, 2), np.int64))
+    assert session.data is before
+
+
+def test_every_explorer_view_shows_the_current_frame(fruit_net, fruit_plan, belt_image, labelled_samples, clip):
+    from widget_checks import assert_explorer_matches_kernel
+
+    from fxnet_widgets.widgets import Explorer
+
+    codes, labels = labelled_samples
+    ex = Explorer(fruit_net, image=belt_image, samples=codes, labels=labels, plan=fruit_plan)
+    panel = FootagePanel(ex, clip, background=False)
+    frames = demo_frames(N, W, H)
+    for i in (1, N - 2):
+        panel.slider.value = i
+        # preview, slices, events, histograms: what the kernel computes on this frame (and the samples)
+        assert_explorer_matches_kernel(ex, frames[i])
+        assert not ex.session.view_errors and not ex.session.error
+        assert f"frame {i} at {i / 25:.3f} s of belt.mkv" in ex.session.image_note
+    ex.session.plan = fruit_plan.replace(out_bits=5)  # a plan change: the explorer still shows the frame
+    assert_explorer_matches_kernel(ex, frames[N - 2])
+    panel.close()
+    assert_explorer_matches_kernel(ex, belt_image)

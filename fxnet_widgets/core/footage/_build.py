@@ -189,7 +189,9 @@ def _flatten(intnet: IntegerNetwork, domains: list[list[Any]]) -> tuple[np.ndarr
     lo = np.array([d[0] for dl in domains for d in dl], dtype=np.int64)
     lengths = [d[1].shape[0] for dl in domains for d in dl]
     toff = np.concatenate([[0], np.cumsum(lengths)[:-1]]).astype(np.int64)
-    tab_codes = np.concatenate([d[1].astype(np.int32) for dl in domains for d in dl])  # codes: <= 16 bits
+    narrow = all(d[1].dtype.itemsize <= 2 and d[1].dtype.kind == "i" for dl in domains for d in dl)
+    # codes of at most 16 bits: int16 tables are half the memory the loop reads (int32 for unsigned 16-bit codes)
+    tab_codes = np.concatenate([d[1].astype(np.int16 if narrow else np.int32) for dl in domains for d in dl])
     tab_bits = np.concatenate([d[2] for dl in domains for d in dl])
     return weights, biases, sizes, np.array(woff, np.int64), goff, lo, toff, tab_codes, tab_bits
 
@@ -288,18 +290,15 @@ def _finish(network: Network, plan: Plan | None, bits: int, n_in: int, decisions
 
 
 def _build_float(network: Network, progress: Callable[[int, int], None] | None) -> Any:
+    """``predict`` + ``decide`` on every colour: float32 chunks, ``predict`` itself near the boundary
+    (:mod:`._float_build`)."""
+    from ._float_build import build_float_decisions
+
     t0 = time.perf_counter()
-    total = _check_cube(network)
-    bits, n_in = network.input_bits, network.n_in
-    size = 1 << total
-    decisions = np.empty(size, dtype=np.uint8)
+    _check_cube(network)
     with _one_blas_thread():
-        for start in range(0, size, CHUNK_COLOURS):
-            stop = min(size, start + CHUNK_COLOURS)
-            decisions[start:stop] = network.decide(network.predict(_index_codes(start, stop, bits, n_in)))
-            if progress is not None:
-                progress(stop, size)
-    return _finish(network, None, bits, n_in, decisions, None, None, (), t0)
+        decisions, _ = build_float_decisions(network, progress)
+    return _finish(network, None, network.input_bits, network.n_in, decisions, None, None, (), t0)
 
 
 def _one_blas_thread() -> Any:

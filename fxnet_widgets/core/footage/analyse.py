@@ -20,7 +20,6 @@ from __future__ import annotations
 import os
 import threading
 import time
-from collections import OrderedDict
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -30,6 +29,7 @@ import numpy as np
 from ..fileio import atomic_write_json, atomic_writer
 from ..network import Network
 from ..plan import Plan
+from ._coded import coded_table
 from .lookup import LOOKUP_EVENTS, ColourLookup, compile_float_lookup, compile_lookup
 from .overlay import OverlayWriter, overlay_frame
 from .reader import Footage, Frame, open_footage
@@ -65,49 +65,21 @@ def _empty_events(network: Network) -> dict[str, list[list[int]]]:
     return {name: [[0] * L.n_out for L in network.layers] for name in LOOKUP_EVENTS}
 
 
-_COMBINED: OrderedDict[Any, np.ndarray] = OrderedDict()
-_COMBINED_LOCK = threading.Lock()
-
-
-def _combined(fixed: ColourLookup, flt: ColourLookup) -> np.ndarray | None:
-    """One table for the per-frame loop (two classes): bit 0 fixed, bit 1 float, bits 2.. events.
-
-    One read per pixel instead of three (the tables are larger than the caches: on a noisy
-    frame each read is a cache miss). Cached by value, like the look-ups it combines.
-    """
-    if fixed.n_classes != 2 or len(fixed.event_slots) > 62:
-        return None
-    key = (fixed.network.digest, fixed.plan, flt.network.digest)
-    with _COMBINED_LOCK:
-        if key in _COMBINED:
-            _COMBINED.move_to_end(key)
-            return _COMBINED[key]
-    dt = np.dtype(np.uint8 if len(fixed.event_slots) <= 6 else np.uint16 if len(fixed.event_slots) <= 14
-                  else np.uint32 if len(fixed.event_slots) <= 30 else np.uint64)  # fmt: skip
-    table = fixed.decisions.astype(dt)
-    table |= flt.decisions.astype(dt) << dt.type(1)
-    if fixed.events is not None and fixed.event_slots:
-        table |= fixed.events.astype(dt) << dt.type(2)
-    table.setflags(write=False)
-    with _COMBINED_LOCK:
-        _COMBINED[key] = table
-        while len(_COMBINED) > 2:
-            _COMBINED.popitem(last=False)
-    return table
-
-
 def _frame_record(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray) -> dict[str, Any]:
     arr = np.ascontiguousarray(rgb)
     n = int(arr.shape[0] * arr.shape[1])
     events = _empty_events(fixed.network)
     kern = _kernels_for(arr, fixed)
-    combined = _combined(fixed, flt) if kern is not None else None
-    if kern is not None and combined is not None:
-        slots = fixed.event_slots
-        counts = np.zeros(max(1, len(slots)), dtype=np.int64)
+    coded = coded_table(fixed, flt) if kern is not None else None
+    if kern is not None and coded is not None:  # most pixels: one read from 256 KB of colour blocks
+        hist = np.zeros(256, dtype=np.int64)
         sums = np.zeros(3, dtype=np.int64)
-        pos_fx, pos_fl, differ = kern.frame_stats_combined(arr.reshape(-1, 3), combined, len(slots), counts, sums)
-        by_slot = {s: int(c) for s, c in zip(slots, counts.tolist())}
+        none = np.zeros(1, dtype=np.uint8)
+        blocks = coded.blocks if coded.blocks is not None else none
+        escape = coded.escape if coded.escape is not None else none
+        kern.frame_codes(arr.reshape(-1, 3), blocks, coded.table, coded.log2_per_byte, escape, hist, sums)
+        pos_fx, pos_fl, differ, counts = coded.counts(hist, len(fixed.event_slots))
+        by_slot = {s: int(c) for s, c in zip(fixed.event_slots, counts.tolist())}
         mean = (sums / max(n, 1)).tolist()
     elif kern is not None:
         slots = fixed.event_slots
@@ -137,8 +109,8 @@ def _frame_record(fixed: ColourLookup, flt: ColourLookup, rgb: np.ndarray) -> di
 class FootageAnalysis:
     """Per-frame records of one source under one plan (see the module text), with totals.
 
-    ``timing`` (seconds: look-up builds, decoding, analysis) varies between runs; everything
-    else is deterministic.
+    ``timing`` (seconds: look-up builds, decoding, analysis, and the analysis in CPU time of the
+    analysing thread) varies between runs; everything else is deterministic.
     """
 
     source: dict[str, Any]
@@ -342,7 +314,7 @@ def analyse_footage(
         stop = clip.info.frames if sl.stop is None else min(sl.stop, clip.info.frames)
         total = max(0, -(-(stop - sl.start) // sl.step))
     records: list[dict[str, Any]] = []
-    decode = analyse = 0.0
+    decode = analyse = analyse_cpu = 0.0
     cancelled = False
     it = iter(held) if held is not None else iter(clip) if clip is not None else iter(())
     masks = _Masks(labels if isinstance(labels, Footage) else open_footage(labels, frames)) if labels is not None \
@@ -358,7 +330,7 @@ def analyse_footage(
                 frame = next(it)
             except StopIteration:
                 break
-            tb = time.perf_counter()
+            tb, cb = time.perf_counter(), time.thread_time()
             rec = {"index": frame.index, "time_s": round(float(frame.time_s), 6),
                    **_frame_record(fixed, flt, frame.rgb)}  # fmt: skip
             if masks is not None:
@@ -372,6 +344,7 @@ def analyse_footage(
             tc = time.perf_counter()
             decode += tb - ta
             analyse += tc - tb
+            analyse_cpu += time.thread_time() - cb
             if on_frame is not None:
                 on_frame(len(records) - 1, rec)
             if progress is not None:
@@ -384,6 +357,7 @@ def analyse_footage(
         writer.close()
     if progress is not None and total and len(records) < total and not cancelled:
         progress(len(records), len(records))  # fewer frames than announced: finish the bar
-    timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse}
+    timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse,
+              "analyse_cpu_s": analyse_cpu}  # fmt: skip
     info = clip.info.to_dict() if clip is not None else dict(source_info or {})
     return FootageAnalysis(info, plan, network, records, cancelled, timing)

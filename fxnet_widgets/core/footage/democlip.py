@@ -5,7 +5,9 @@ through a window that moves with the belt; over the clip the light drifts from t
 training lamp towards a dimmer, cooler light, and a few frames in the middle carry
 a glare spot (a bright reflection that saturates the sensor). Everything is numpy,
 driven by one seed, so the frames are the same on every machine; the clip file is
-FFV1 (lossless, RGB ``bgr0``) in Matroska, so decoding gives the frames back exactly.
+FFV1 (lossless, RGB ``bgr0``) in Matroska, so decoding gives the frames back exactly,
+and it is written byte for byte the same each time (``fxnet demo`` writes it as
+:data:`~fxnet_widgets.core.demo.DEMO_CLIP`: 40 frames of 160 x 96, about 0.9 MB).
 
 >>> frames = demo_frames(n_frames=4, width=64, height=40)
 >>> len(frames), frames[0].shape, frames[0].dtype
@@ -57,16 +59,22 @@ def demo_frames(n_frames: int = 40, width: int = 160, height: int = 96, *, seed:
 
 def write_demo_clip(path: str | os.PathLike[str], n_frames: int = 40, width: int = 160, height: int = 96, *,
                     seed: int = 6) -> str:  # fmt: skip
-    """Write the demo clip (FFV1 ``bgr0`` in Matroska, :data:`DEMO_RATE` frames/s); returns the path."""
+    """Write the demo clip (FFV1 ``bgr0`` in Matroska, :data:`DEMO_RATE` frames/s); returns the path.
+
+    Written with FFmpeg's bitexact flags: the same arguments give the same bytes (with the same
+    FFmpeg libraries: PyAV's wheel ships them; tests write it twice and compare).
+    """
     import av
 
     frames = demo_frames(n_frames, width, height, seed=seed)
     p = os.fspath(path)
 
     def write(fh: object) -> None:
-        with av.open(fh, mode="w", format="matroska") as c:
+        # bitexact: no random segment id, no library version strings, so the same frames give the same bytes
+        with av.open(fh, mode="w", format="matroska", options={"fflags": "+bitexact"}) as c:
             s = c.add_stream("ffv1", rate=Fraction(DEMO_RATE), options={"g": "1"})
             s.width, s.height, s.pix_fmt = width, height, "bgr0"
+            s.codec_context.flags |= av.codec.context.Flags.bitexact
             for f in frames:
                 for pkt in s.encode(av.VideoFrame.from_ndarray(f, format="rgb24")):
                     c.mux(pkt)

@@ -17,7 +17,9 @@ frame with one gather per pixel. :func:`compile_lookup` builds that table:
   x 2 or 4 bytes), the build may hold the event table once more (when some reachable event never
   happens and its bit is dropped), 5 bytes
   per integer of each neuron's sum interval (at most :data:`~._build.DOMAIN_MAX` = 2^22
-  integers, 20 MB; wider intervals are evaluated directly), and, on the numpy path, chunks of
+  integers, 20 MB; wider intervals are evaluated directly), on the compiled path
+  ``(8 x widest layer + 16)`` bytes per colour of the low inputs (at most 2^16 colours: 1.5 MiB
+  for the demo network), and, on the numpy path, chunks of
   :data:`CHUNK_COLOURS` colours (about 64 bytes x 2^17 x the widest layer: 8 MB per neuron).
   Measured for the 3-3-1 demo network: 44 MiB at the peak, tables included
   (``benchmarks/bench_footage.py``, tracemalloc);
@@ -64,9 +66,12 @@ _LOCK = threading.Lock()
 
 
 def clear_lookup_cache() -> None:
-    """Forget every cached table."""
+    """Forget every cached table (the look-ups and the per-frame tables made from them)."""
     with _LOCK:
         _CACHE.clear()
+    from . import _coded
+
+    _coded.clear()
 
 
 @dataclass(frozen=True, eq=False)
@@ -212,7 +217,13 @@ def compile_lookup(network: Network, plan: Plan, *, codes: bool = False, events:
 
 
 def compile_float_lookup(network: Network, *, progress: Callable[[int, int], None] | None = None) -> ColourLookup:
-    """The float network's decisions over every input colour (float64, as ``Network.predict``; cached)."""
+    """The float network's decisions over every input colour, those of ``Network.predict`` (float64)
+    and ``Network.decide`` colour for colour (cached).
+
+    Computed in float32 chunks with a bound on their error; the colours near the decision
+    boundary are recomputed by ``predict`` itself (:mod:`._float_build`; 2^24 bytes of
+    decisions plus about 2 MiB of work for the demo network).
+    """
     if not isinstance(network, Network):
         raise TypeError(f"network must be a Network, not {type(network).__name__}")
     return _cached(("float", network.digest), lambda: _build_float(network, progress))
