@@ -61,9 +61,13 @@ def hardware_section_html(widget: Any) -> str:
         parts.append("<p>No finished synthesis result.</p></section>")
         return "\n".join(parts)
     if panel.is_stale:
-        parts.append(f'<p class="stale"><strong>stale: computed for another plan</strong> '
-                     f"({esc(plan_widths(panel.result_plan))}), not the plan of this report "
-                     f"({esc(plan_widths(panel.session.plan))}).</p>")  # fmt: skip
+        if panel.result_plan != panel.session.plan:
+            parts.append(f'<p class="stale"><strong>stale: computed for another plan</strong> '
+                         f"({esc(plan_widths(panel.result_plan))}), not the plan of this report "
+                         f"({esc(plan_widths(panel.session.plan))}).</p>")  # fmt: skip
+        else:
+            parts.append('<p class="stale"><strong>stale: computed for another network</strong> '
+                         "(other weights under this plan), not the network of this report.</p>")
     pipeline = (panel.result_settings or {}).get("pipeline", "auto")
     facts = [f"target {r.target}, device {r.device}", f"clock {clock_of(r)}",
              f"pipeline {pipeline}", f"latency {r.latency} clocks" if r.latency is not None else "latency unknown",

@@ -90,6 +90,7 @@ class HardwarePanel(w.VBox):
         self.caution = w.HTML(f"<small style='color:#555'>{html.escape(CAUTION)}</small>")
         self.result: SynthesisResult | None = None
         self.result_plan: Plan | None = None
+        self.result_network: Any = None  # the network it was computed with (the explorer's refine swaps networks)
         self._result_args: dict[str, Any] | None = None
         self._estimated: tuple[Any, dict[str, int] | None] = (None, None)
         self.error = ""
@@ -99,6 +100,7 @@ class HardwarePanel(w.VBox):
         self.button.on_click(lambda _b: self.start())
         self.stop_button.on_click(lambda _b: self.stop())
         session.observe(lambda _c: self._show(), names=["plan"])
+        session.add_view("hardware", lambda _r: self._show())  # a network swap (refine) redraws every view
         for chooser in (self.target, self.clock, self.clock_mhz, self.pipeline):
             chooser.observe(lambda _c: self._show(), names=["value"])
         controls = w.HBox([self.target, self.clock, self.clock_mhz, self.pipeline],
@@ -114,8 +116,17 @@ class HardwarePanel(w.VBox):
 
     @property
     def is_stale(self) -> bool:
-        """True when the shown result was computed for another plan than the session's current one."""
-        return self.result is not None and self.result_plan != self.session.plan
+        """True when the shown result was computed for another plan (or network) than the session's current one."""
+        return self.result is not None and (
+            self.result_plan != self.session.plan or self.result_network != self.session.network
+        )
+
+    @property
+    def stale_what(self) -> str:
+        """What a stale result was computed for: "another plan (...)" or "another network (...)"."""
+        if self.result_plan is not None and self.result_plan != self.session.plan:
+            return f"another plan ({plan_widths(self.result_plan)})"
+        return "another network (other weights under this plan, e.g. refined or plain)"
 
     @property
     def result_settings(self) -> dict[str, Any] | None:
@@ -179,6 +190,7 @@ class HardwarePanel(w.VBox):
             self.error, self.message.value, self.progress.bar_style = first_line(exc), "failed", "danger"
         else:
             self.result, self.result_plan, self._result_args = result, plan, args
+            self.result_network = network
             self.message.value = "done (from the cache)" if result.cached else "done"
             self.progress.value, self.progress.bar_style = 1.0, "success"
         finally:
@@ -189,10 +201,10 @@ class HardwarePanel(w.VBox):
         """The calibrated estimates for the result's plan and target (None: no result, or no calibration)."""
         if self.result is None or self.result_plan is None:
             return None
-        key = (self.result.key, self.result_plan)
+        key = (self.result.key, self.result_plan, self.result_network)
         if self._estimated[0] != key:
             try:
-                est = hardware_cost(self.session.network, self.result_plan, target=self.result.target).estimated()
+                est = hardware_cost(self.result_network, self.result_plan, target=self.result.target).estimated()
             except ValueError:
                 est = None  # no calibration for this target
             self._estimated = (key, est)
@@ -232,9 +244,7 @@ class HardwarePanel(w.VBox):
             lines.append("not synthesized yet: press synthesize")
             return "\n".join(lines)
         if self.is_stale:
-            assert self.result_plan is not None
-            lines.append(f"stale: these figures are for another plan ({plan_widths(self.result_plan)}), "
-                         "not the current one")  # fmt: skip
+            lines.append(f"stale: these figures are for {self.stale_what}, not the current one")
         if self._other_settings():
             lines.append(self._other_settings())
         lines.append(f"{r.target} ({r.device})")
@@ -251,8 +261,8 @@ class HardwarePanel(w.VBox):
         r = self.result
         notes = []
         if self.is_stale:
-            notes.append("<b style='color:#b06000'>stale: these figures are for another plan, not the current one"
-                         "</b>")  # fmt: skip
+            notes.append(f"<b style='color:#b06000'>stale: these figures are for {html.escape(self.stale_what)}, "
+                         "not the current one</b>")  # fmt: skip
         if self._other_settings():
             notes.append(f"<span style='color:#b06000'>{html.escape(self._other_settings())}</span>")
         self.stale.value = "<br>".join(notes)

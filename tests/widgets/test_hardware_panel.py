@@ -228,3 +228,26 @@ def test_explorer_synthesize_click_shows_the_measured_table_then_stale(tools, fr
     # 2**9 words x 8 bits: one 4 kbit block per table
     est9 = hardware_cost(fruit_net, ex.plan, target="ice40-up5k").estimated()
     assert hw.result.brams == 4 and f"<td>block RAMs</td><td>{est9['brams']}</td><td>4</td>" in hw.figures.value
+
+
+def test_a_network_swap_under_the_same_plan_marks_the_result_stale(tools, session, tmp_path):
+    """A synthesized datapath holds its network's weights: the same plan with other weights is another design."""
+    import dataclasses
+
+    import numpy as np
+
+    panel = HardwarePanel(session, run=lambda network, plan, **kw: synthesize(
+        _adder_dir(tmp_path, plan), cache_dir=tmp_path / "cache", **kw))  # fmt: skip
+    panel.start()
+    assert panel.wait(120) and not panel.is_stale and panel.result_network == session.network
+    net = session.network
+    first = net.layers[0]
+    nudged = dataclasses.replace(first, weights=np.asarray(first.weights) + 2.0**-6)
+    other = net.replace_layers([nudged, *net.layers[1:]])
+    session.use_network(other)
+    session.flush()
+    assert panel.is_stale and panel.text.startswith("stale: these figures are for another network")
+    assert "another network" in panel.stale.value
+    session.use_network(net)
+    session.flush()
+    assert not panel.is_stale and panel.stale.value == ""
