@@ -12,6 +12,7 @@ from collections.abc import Callable, Hashable
 from typing import Any
 
 __all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
+           "WEIGHT_CACHE",
            "clear_caches", "cache_stats"]  # fmt: skip
 
 
@@ -60,9 +61,13 @@ SUM_CACHE = LRU(4)
 #: activation tables (read-only) by their :class:`.tables.TableSpec`: plans that differ only
 #: in fields a table does not depend on (the accumulator width, the weights' values) share it
 TABLE_CACHE = LRU(256)
+#: one layer's weight codes, raw bias codes and safe widths by (network digest, layer, weight
+#: fields, input format): plans that differ in the accumulator, table or output fields share them
+WEIGHT_CACHE = LRU(256)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
-          "sums": SUM_CACHE, "table": TABLE_CACHE}  # fmt: skip
+          "sums": SUM_CACHE, "table": TABLE_CACHE,
+          "weights": WEIGHT_CACHE}  # fmt: skip
 
 
 def clear_caches() -> None:

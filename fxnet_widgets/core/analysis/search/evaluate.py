@@ -24,6 +24,7 @@ from ...starting import start_plan, with_safe_acc
 from ..cost import COST_KEYS, hardware_cost
 from ..metrics import check_labels, error_metrics
 from .executors import Runner
+from .fast import evaluate_fast
 from .progress import Progress
 from .records import SweepRecord
 
@@ -113,6 +114,12 @@ def _run_chunk(
     net = _network_from(net_doc)
     _compiled.load_for(codes.shape[0])  # many plans on the same data: the compiled loops pay for their import
     prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
+    if _compiled.use_compiled(prep.n):  # the fast path (same records; FXNET_KERNEL=numpy: the reference)
+        return [
+            evaluate_fast(net, prep, labels, t.index, t.settings, Plan.from_dict(t.plan_doc), t.safe_acc, cost_key,
+                          options)
+            for t in tasks
+        ]  # fmt: skip
     return [_evaluate_one(net, prep, labels, t, cost_key, options) for t in tasks]
 
 
