@@ -9,6 +9,7 @@ Cached by value.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from functools import partial
 from typing import NamedTuple
 
@@ -132,7 +133,10 @@ def _output(activation: str, has_table: bool, lp: LayerPlan, acc_frac: int) -> _
         ilo, ihi = signed_range(lp.table_bits)
         spec = TableSpec(activation, lp.table_bits, lp.table_frac, k, lp.index_round,
                          lp.table_sample, out_frac, lp.table_round, out_lo, out_hi)  # fmt: skip
-        table = TABLE_CACHE.get(spec, partial(build_table, spec))
+        # an edge-sampled table (or any with k <= 0) reads neither k nor index_round (tables.table_inputs):
+        # plans that differ only in the weight fraction share it
+        key = spec if spec.sample == "mid" and k > 0 else replace(spec, shift=0, index_round="floor")
+        table = TABLE_CACHE.get(key, partial(build_table, key))
         return _Output(k, CodeFormat(lp.table_frac, ilo, ihi), table, CodeFormat(out_frac, out_lo, out_hi, out_signed),
                        CodeFormat(out_frac, int(table.min()), int(table.max()), out_signed))  # fmt: skip
     fmt = CodeFormat(out_frac, out_lo, out_hi, out_signed)
