@@ -24,6 +24,7 @@ from ...starting import start_plan, with_safe_acc
 from ..cost import COST_KEYS, hardware_cost
 from ..metrics import check_labels, error_metrics
 from .executors import Runner
+from .shared import SharedCodes, share_codes
 from .fast import evaluate_fast
 from .progress import Progress
 from .records import SweepRecord
@@ -107,11 +108,13 @@ def argmax_ties(out_codes: np.ndarray, decisions: np.ndarray, float_decisions: n
 
 
 def _run_chunk(
-    net_doc: dict[str, Any], codes: np.ndarray, labels: np.ndarray | None, tasks: list[PlanTask], cost_key: str,
-    options: dict[str, Any],
+    net_doc: dict[str, Any], codes: np.ndarray | SharedCodes, labels: np.ndarray | None, tasks: list[PlanTask],
+    cost_key: str, options: dict[str, Any],
 ) -> list[SweepRecord]:  # fmt: skip
     """Evaluate one chunk of plans (runs in a worker)."""
     net = _network_from(net_doc)
+    if isinstance(codes, SharedCodes):
+        codes = codes.read()
     _compiled.load_for(codes.shape[0])  # many plans on the same data: the compiled loops pay for their import
     prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
     if _compiled.use_compiled(prep.n):  # the fast path (same records; FXNET_KERNEL=numpy: the reference)
@@ -180,13 +183,15 @@ def evaluate(
     bounds = np.linspace(0, total, n_chunks + 1).round().astype(int)
     doc = network.to_dict()
     futures = {}
-    for a, b in zip(bounds[:-1], bounds[1:]):
-        if b > a:
-            fut = runner.executor.submit(_run_chunk, doc, codes, labels, tasks[a:b], cost_key, options)
-            futures[fut] = b - a
+    shared = share_codes(codes) if runner.local and n_chunks > 1 else None
+    payload = codes if shared is None else shared.handle
     done = 0
     records: list[SweepRecord] = []
     try:
+        for a, b in zip(bounds[:-1], bounds[1:]):
+            if b > a:
+                fut = runner.executor.submit(_run_chunk, doc, payload, labels, tasks[a:b], cost_key, options)
+                futures[fut] = b - a
         for fut in cf.as_completed(futures):
             records.extend(fut.result())
             done += futures[fut]
@@ -196,6 +201,9 @@ def evaluate(
         for fut in futures:
             fut.cancel()
         raise
+    finally:
+        if shared is not None:
+            shared.release()
     records.sort(key=lambda r: r.index)
     return records
 
