@@ -11,7 +11,7 @@ from itertools import combinations
 
 import numpy as np
 
-from ..core.analysis.metrics import error_metrics
+from ..core.analysis.metrics import error_metrics, pair_counts
 from ..core.kernel import Emulation, emulate
 from ..core.plan import Plan
 from ..render.raster import DownscaledImage
@@ -105,6 +105,6 @@ def data_figures(name: str, emulation: Emulation, labels: np.ndarray | None, n_c
     m = error_metrics(emulation, labels)
     fl = np.asarray(emulation.float_decisions).reshape(-1)
     fx = np.asarray(emulation.decisions).reshape(-1)
-    pairs = np.bincount(fl * n_classes + fx, minlength=n_classes * n_classes).reshape(n_classes, n_classes)
+    pairs = pair_counts(fl, fx, n_classes)
     agreement = tuple(tuple(int(v) for v in row) for row in pairs)
     return DataFigures(name, m, agreement, argmax_ties(emulation.out_codes))
