@@ -192,8 +192,10 @@ def sums_and_bounds(
 ) -> tuple[list[np.ndarray], Bounds]:
     """:func:`layer_sums` and, per neuron, their min and max on the data (compiled where it runs)."""
     n = prep.n if prev_codes is None and prep is not None else (prev_codes.shape[1] if prev_codes is not None else 0)
-    if prev_codes is not None and n and _compiled.use_compiled(n):
-        done = _dense_compiled(layer, prev_codes)
+    if n and _compiled.use_compiled(n):
+        # the first layer reads the per-input code columns, stacked (n_in, N): one pass for every neuron
+        x = prev_codes if prev_codes is not None else np.stack(prep.columns) if prep is not None else None
+        done = _dense_compiled(layer, x) if x is not None else None
         if done is not None:
             return done
     sums = layer_sums(layer, prep, prev_codes, bits)
@@ -273,7 +275,7 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
 
     Applies when no sum on the data can overflow the accumulator: then the code, ``table_low``
     and ``table_high`` are monotone in the sum (rounding, clamp and the table's entries are), so a
-    bucket whose first and last sum agree on all three agrees throughout.
+    bucket whose first sum and the next bucket's first sum agree on all three agrees throughout.
     """
     lo = layer.sum_min[j]
     alo, ahi = signed_range(layer.plan.acc_bits)
@@ -285,12 +287,15 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
     if b == 0:
         return False
     nb = ((m1 - m0) >> b) + 1
-    starts = m0 + (np.arange(nb, dtype=np.int64) << np.int64(b))
-    ends = np.minimum(starts + ((1 << b) - 1), m1)
-    out = post_accumulate(layer, np.concatenate((starts, ends)) + np.int64(lo), lo + m0, lo + m1)
-    c, ev = out["codes"], _event_bits(out, 2 * nb)
+    # every bucket's first sum and the last sum m1: bucket q agrees throughout when its first sum and
+    # the next bucket's (for the last, m1) agree, as all sums between them do (monotone); a step just
+    # at the next bucket's start only sends this bucket's samples to the exact path
+    pts = m0 + (np.arange(nb + 1, dtype=np.int64) << np.int64(b))
+    pts[nb] = m1
+    out = post_accumulate(layer, pts + np.int64(lo), lo + m0, lo + m1)
+    c, ev = out["codes"], _event_bits(out, nb + 1)
     ev_q = ev[:nb].copy()
-    ev_q[(c[:nb] != c[nb:]) | (ev[:nb] != ev[nb:])] = 128  # a step inside: its samples are computed exactly
+    ev_q[(c[:nb] != c[1:]) | (ev[:nb] != ev[1:])] = 128  # a step inside: its samples are computed exactly
     hist = np.zeros(8, dtype=np.int64)
     idx = np.empty(min(n, _MIXED_CHUNK), dtype=np.int64)  # bounded: no per-sample index array on a large frame
     codes_q = np.ascontiguousarray(c[:nb], dtype=row.dtype)
