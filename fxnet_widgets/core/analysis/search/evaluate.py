@@ -24,10 +24,10 @@ from ...starting import start_plan, with_safe_acc
 from ..cost import COST_KEYS, hardware_cost
 from ..metrics import check_labels, error_metrics
 from .executors import Runner
-from .shared import SharedCodes, share_codes
 from .fast import evaluate_fast
 from .progress import Progress
 from .records import SweepRecord
+from .shared import SharedCodes, share_codes
 
 __all__ = [
     "PlanTask", "argmax_ties", "base_plan", "evaluate", "evaluate_plans", "check_cost_key", "check_cost_options",
