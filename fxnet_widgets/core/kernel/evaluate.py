@@ -313,6 +313,35 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
     return True
 
 
+def _lut_fits(m0: int, m1: int, n: int) -> bool:
+    """Whether a neuron whose offset sums span ``[m0, m1]`` on ``n`` samples gets an exact look-up table."""
+    span = m1 - m0 + 1
+    return span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024  # m1: the LUT length
+
+
+def _shared_domain(layer: IntegerLayer, ms: list[tuple[int, int]], n: int,
+                   compiled: bool) -> tuple[int, int, dict[str, Any]] | None:  # fmt: skip
+    """Steps 4-7 once over the union of the look-up domains of a layer's neurons, when it saves work.
+
+    :func:`.accumulate.post_accumulate` is a function of the sum alone for one layer's plan (every
+    neuron shares the accumulator, shift and table), so each neuron's look-up table is a slice of
+    one over the union ``[u0, u1]``. Used when at least two neurons take a look-up table and the
+    union is smaller than their domains together (they overlap). None: each neuron computes its own.
+    """
+    doms = []
+    for j, (m0, m1) in enumerate(ms):
+        wide = m1 - m0 + 1 >= max(_COARSE_MIN_SPAN, n // 2)
+        if _lut_fits(m0, m1, n) and not (compiled and wide):  # a wide one takes the bucket path first
+            lo = layer.sum_min[j]
+            doms.append((lo + m0, lo + m1))
+    if len(doms) < 2:
+        return None
+    u0, u1 = min(d[0] for d in doms), max(d[1] for d in doms)
+    if u1 - u0 + 1 >= sum(b - a + 1 for a, b in doms):
+        return None
+    return u0, u1, post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
+
+
 def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
     """Steps 4-7 on the offset sums ``shifted``; ``bounds``: their per-neuron min and max, when known."""
     n = shifted[0].shape[0] if shifted else 0
@@ -325,13 +354,15 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
     acc_direct: list[Any] = []
     obs_min = np.zeros(layer.n_out, dtype=np.int64)
     obs_max = np.zeros(layer.n_out, dtype=np.int64)
+    # the look-up table of neuron j covers only the sums seen on the data: [lo + m0, lo + m1]
+    if bounds is not None and n:
+        ms = [(int(a), int(b)) for a, b in zip(bounds[0], bounds[1])]
+    else:
+        ms = [(int(sp.min()), int(sp.max())) if n else (0, 0) for sp in shifted]
+    shared = _shared_domain(layer, ms, n, kern is not None)
     for j, sp in enumerate(shifted):
         lo = layer.sum_min[j]
-        # the look-up table covers only the sums seen on the data: [lo + m0, lo + m1]
-        if bounds is not None and n:
-            m0, m1 = int(bounds[0][j]), int(bounds[1][j])
-        else:
-            m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
+        m0, m1 = ms[j]
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
@@ -339,9 +370,15 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         if kern is not None and wide and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
             acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
             continue
-        if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
-            dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
-            out = post_accumulate(layer, dom, lo + m0, lo + m1)
+        if _lut_fits(m0, m1, n):
+            if shared is not None and shared[0] <= lo + m0 and lo + m1 <= shared[1]:
+                a = lo + m0 - shared[0]
+                out = {k: None if v is None else v[a : a + span] for k, v in shared[2].items()}
+                if out["acc_overflow"] is not None and not out["acc_overflow"].any():
+                    out["acc_overflow"] = None  # s_A is the exact sum on this neuron's domain
+            else:
+                dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
+                out = post_accumulate(layer, dom, lo + m0, lo + m1)
 
             def lut(v: np.ndarray, dt: Any = None, m0: int = m0) -> np.ndarray:
                 # indexed by sp directly: entries below m0 are never read
