@@ -1,7 +1,9 @@
 """Sweep throughput: plans evaluated per second on 100,000 samples of a 3-3-1 network.
 
-Prints plans/s in this process with the numpy reference kernel (``FXNET_KERNEL=numpy``,
-the path every plan took before the compiled loops) and with the compiled loops, their
+Prints plans/s in this process on the numpy reference path (``FXNET_KERNEL=numpy``: the
+numpy loops and the reference evaluation of each plan, ``with_safe_acc`` and ``error_metrics``,
+the path every plan took before the compiled loops) and on the compiled path (the numba loops
+and the search's fast path, ``search/fast.py``; the same records), their
 CPU-time ratio (target >= 3x), the JIT compile time (cold: a fresh process with an empty
 numba cache; warm: a fresh process reading the cache), then plans/s on a local pool of one
 worker and of two workers and the parallel efficiency ``rate(2) / (2 x rate(1))`` (target >= 80 %).
@@ -81,6 +83,7 @@ sp = np.zeros(4, np.int32); c = np.zeros(4, np.uint8); e = np.zeros(4, np.uint8)
 k.lut_apply(sp, 0, c, e, c, h)
 k.coarse_apply(sp, 0, 0, 1, c, e, c, h, np.empty(4, np.int64))
 k.minmax(sp)
+k.abs_error(c, 0, np.zeros(256), np.zeros(4), np.empty(4))
 print(time.perf_counter() - t)
 """
 
@@ -115,8 +118,8 @@ def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) ->
             os.environ["FXNET_KERNEL"] = saved
     ref, new = n_plans / best["numpy"][1], n_plans / best["compiled"][1]
     wall_ref, wall_new = n_plans / best["numpy"][0], n_plans / best["compiled"][0]
-    print(f"  numpy reference kernel (FXNET_KERNEL=numpy): {ref:7.1f} plans/s of CPU ({wall_ref:.1f} plans/s wall)")
-    print(f"  compiled kernel (numba):                     {new:7.1f} plans/s of CPU ({wall_new:.1f} plans/s wall)")
+    print(f"  numpy reference path (FXNET_KERNEL=numpy):   {ref:7.1f} plans/s of CPU ({wall_ref:.1f} plans/s wall)")
+    print(f"  compiled path (numba loops, search fast path): {new:5.1f} plans/s of CPU ({wall_new:.1f} plans/s wall)")
     print(f"  speed-up, CPU time:          {new / ref:.2f}x (target >= 3x)")
     with tempfile.TemporaryDirectory() as tmp:
         cold = compile_seconds(tmp)
