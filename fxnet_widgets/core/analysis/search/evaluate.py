@@ -113,10 +113,11 @@ def _run_chunk(
 ) -> list[SweepRecord]:  # fmt: skip
     """Evaluate one chunk of plans (runs in a worker)."""
     net = _network_from(net_doc)
-    if isinstance(codes, SharedCodes):
-        codes = codes.read()
-    _compiled.load_for(codes.shape[0])  # many plans on the same data: the compiled loops pay for their import
-    prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
+    if isinstance(codes, SharedCodes):  # decomposed once per worker and data (not hashed per chunk)
+        prep = codes.prepared(net.input_bits, net.n_in)
+    else:
+        prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
+    _compiled.load_for(prep.n)  # many plans on the same data: the compiled loops pay for their import
     if _compiled.use_compiled(prep.n):  # the fast path (same records; FXNET_KERNEL=numpy: the reference)
         return [
             evaluate_fast(net, prep, labels, t.index, t.settings, Plan.from_dict(t.plan_doc), t.safe_acc, cost_key,

@@ -10,6 +10,8 @@ The driver unlinks the block when the evaluation ends. Only used for :func:`.loc
 workers (the same machine); any other executor gets the codes themselves.
 
 >>> import numpy as np
+
+from ...kernel.evaluate import Prepared, prepare
 >>> codes = np.arange(12, dtype=np.uint8).reshape(4, 3)
 >>> shared = share_codes(codes)
 >>> bool((shared.handle.read() == codes).all())
@@ -27,6 +29,8 @@ from multiprocessing import shared_memory
 
 import numpy as np
 
+from ...kernel.evaluate import Prepared, prepare
+
 __all__ = ["KEEP", "SharedCodes", "Shared", "share_codes"]
 
 #: how many input arrays a worker keeps (by digest)
@@ -34,6 +38,7 @@ KEEP = 2
 
 _LOCK = threading.Lock()
 _KEPT: OrderedDict[str, np.ndarray] = OrderedDict()
+_PREPARED: OrderedDict[tuple[str, int, int], Prepared] = OrderedDict()
 
 
 @dataclass(frozen=True)
@@ -65,6 +70,20 @@ class SharedCodes:
             while len(_KEPT) > KEEP:
                 _KEPT.popitem(last=False)
         return arr
+
+
+    def prepared(self, bits: int, n_in: int) -> Prepared:
+        """The kernel's decomposition of the codes, made once per worker (by digest, bits and inputs)."""
+        key = (self.digest, bits, n_in)
+        with _LOCK:
+            prep = _PREPARED.get(key)
+        if prep is None:
+            prep = prepare(self.read(), bits, n_in)
+            with _LOCK:
+                _PREPARED[key] = prep
+                while len(_PREPARED) > KEEP:
+                    _PREPARED.popitem(last=False)
+        return prep
 
 
 class Shared:

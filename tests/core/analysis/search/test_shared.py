@@ -48,3 +48,14 @@ def test_equal_bytes_of_another_shape_are_other_data():
     finally:
         a.release()
         b.release()
+
+
+def test_worker_decomposes_the_data_once():
+    codes = np.random.default_rng(5).integers(0, 256, (5000, 3), dtype=np.uint8)
+    block = sh.share_codes(codes)
+    try:
+        first = block.handle.prepared(8, 3)
+        assert block.handle.prepared(8, 3) is first
+        assert first.n == 5000 and np.array_equal(first.flat, codes)
+    finally:
+        block.release()
