@@ -373,7 +373,7 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         if _lut_fits(m0, m1, n):
             if shared is not None and shared[0] <= lo + m0 and lo + m1 <= shared[1]:
                 a = lo + m0 - shared[0]
-                out = {k: None if v is None else v[a : a + span] for k, v in shared[2].items()}
+                out: dict[str, Any] = {k: None if v is None else v[a : a + span] for k, v in shared[2].items()}
                 if out["acc_overflow"] is not None and not out["acc_overflow"].any():
                     out["acc_overflow"] = None  # s_A is the exact sum on this neuron's domain
             else:
