@@ -1,9 +1,10 @@
 """Evaluating plans on data, in chunks, on any executor; records come back in order.
 
-Each task carries the network document, the input codes and one chunk of
-:class:`PlanTask` records, so the data travels once per chunk, never once per
-plan. Every plan is evaluated by the same deterministic code, so the records
-are identical whatever runs them.
+Each task carries the network document, the input codes (for a local pool, a
+handle to one shared-memory block) and one chunk of :class:`PlanTask` records,
+so the data travels at most once per chunk, never once per plan. Every plan is
+evaluated by the same deterministic code, so the records are identical whatever
+runs them.
 """
 
 from __future__ import annotations
