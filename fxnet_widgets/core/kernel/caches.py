@@ -16,6 +16,9 @@ __all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "S
            "clear_caches", "cache_stats"]  # fmt: skip
 
 
+_MISSING = object()
+
+
 class LRU:
     """A thread-safe least-recently-used map from a value key to a computed value."""
 
@@ -29,10 +32,11 @@ class LRU:
     def get(self, key: Hashable, make: Callable[[], Any]) -> Any:
         """The value of ``key``, made with ``make()`` (outside the lock) on a miss."""
         with self.lock:
-            if key in self.data:
+            value = self.data.get(key, _MISSING)
+            if value is not _MISSING:
                 self.data.move_to_end(key)
                 self.hits += 1
-                return self.data[key]
+                return value
         value = make()
         with self.lock:
             self.misses += 1

@@ -18,7 +18,7 @@ paths on the same random cases and require identical records.
 
 from __future__ import annotations
 
-from dataclasses import replace
+import copy
 from typing import Any
 
 import numpy as np
@@ -27,7 +27,7 @@ from ...kernel import _compiled, emulate
 from ...kernel.build import safe_acc_widths
 from ...kernel.evaluate import Prepared
 from ...network import Network
-from ...plan import Plan
+from ...plan import LayerPlan, Plan, check_field
 from ..cost import hardware_cost
 from .records import SweepRecord
 
@@ -63,6 +63,14 @@ def _error_stats(result: Any, n: int) -> tuple[float, float]:
     return max(float(v * scale) for v in mx), float(np.mean([float(v * scale) for v in mn]))
 
 
+def _with_acc(lp: LayerPlan, acc_bits: int) -> LayerPlan:
+    """``dataclasses.replace(lp, acc_bits=acc_bits)`` checking only the field that changes."""
+    check_field("acc_bits", acc_bits, "")  # what replace's full check says about it, word for word
+    out = copy.copy(lp)
+    object.__setattr__(out, "acc_bits", acc_bits)
+    return out
+
+
 def evaluate_fast(
     net: Network, prep: Prepared, labels: np.ndarray | None, index: int, settings: tuple[tuple[str, Any], ...],
     plan: Plan, safe_acc: bool, cost_key: str, options: dict[str, Any],
@@ -73,7 +81,7 @@ def evaluate_fast(
     try:
         if safe_acc:
             widths = safe_acc_widths(net, plan)
-            plan = Plan(tuple(replace(lp, acc_bits=w) for lp, w in zip(plan.layers, widths)))
+            plan = Plan(tuple(_with_acc(lp, w) for lp, w in zip(plan.layers, widths)))
         result = emulate(net, plan, prep)
         cost = hardware_cost(net, plan, **options)
     except ValueError as exc:

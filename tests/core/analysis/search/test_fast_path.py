@@ -77,3 +77,16 @@ def test_safe_widths_walk_equals_the_wide_build(data):
         return
     assert safe_acc_widths(net, plan) == tuple(lp.acc_bits for lp in want.layers)
 
+
+
+def test_a_safe_width_beyond_the_limit_is_refused_alike():
+    # a bias of 1e20 at 8 + 8 fraction bits needs an accumulator of about 84 bits: beyond acc_bits'
+    # limit of 62 (semantics.md, plan limits), so both paths refuse the plan with the same words
+    net = fw.Network.from_layers([([[1.0, -1.0, 0.5]], [1e20], "sigmoid")])
+    plan = fw.Plan.uniform(net, weight_bits=12, weight_frac=8, acc_bits=20, out_bits=8, table_bits=10,
+                           table_frac=6)  # fmt: skip
+    codes = np.random.default_rng(1).integers(0, 256, (3000, 3)).astype(np.uint8)
+    ref = _records(net, [plan], codes, None, "numpy")
+    assert ref[0]["error"] is not None and "acc_bits" in ref[0]["error"]
+    assert ref[1]["error"] is None  # the plan's own width (no safe-width derivation) is evaluated
+    assert _records(net, [plan], codes, None, "compiled") == ref
