@@ -127,11 +127,20 @@ def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) ->
     print(f"  JIT: numba import and compile {cold:.2f} s cold (empty cache), {warm:.2f} s warm (from the cache)")
 
 
+# One core means one BLAS thread too: the float reference's small products (N x 3 by 3 x 3) gain
+# nothing from a second thread, whose spinning counted as this process's CPU time (measured
+# here: 156 % of one core for a serial sweep) and slowed the other worker. The script restarts
+# itself with these set (pool workers inherit them).
+_ONE_THREAD = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=(__doc__ or "").splitlines()[0])
     ap.add_argument("--samples", type=int, default=100_000)
     ap.add_argument("--repeat", type=int, default=3, help="best of N timings (at most 8)")
     args = ap.parse_args()
+    if any(os.environ.get(k) != v for k, v in _ONE_THREAD.items()):
+        os.execve(sys.executable, [sys.executable, *sys.argv], {**os.environ, **_ONE_THREAD})
     net = network()
     codes = np.random.default_rng(3).integers(0, 256, (args.samples, 3), dtype=np.uint8)
     grid = {"weight_frac": [3, 4, 5, 6, 7, 8], "table_bits": [8, 9, 10, 11, 12, 13, 14], "out_bits": [6, 8]}
@@ -139,7 +148,7 @@ def main() -> None:
     warm = {"table_bits": [15, 16, 17, 18]}  # plans no timed run uses
     load0 = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"sweep of {n_plans} distinct plans on {args.samples} samples of a 3-3-1 sigmoid network")
-    print(f"  {os.cpu_count()} cores; load average before {load0:.2f}")
+    print(f"  {os.cpu_count()} cores; load average before {load0:.2f}; BLAS threads: 1")
     kernel_ratio(net, codes, grid, min(args.repeat, 8))
     pools = {}
     for workers in (1, 2):
