@@ -15,6 +15,7 @@ Run: python benchmarks/bench_kernel.py [--repeat 7]
 from __future__ import annotations
 
 import argparse
+import os
 import statistics
 import sys
 import time
@@ -85,11 +86,20 @@ def median_time(fn, repeat: int, setup=None) -> float:
     return statistics.median(times)
 
 
+# One BLAS thread: the float passes' small products (N x 3 by 3 x 3) gain nothing from a second
+# thread, and on a loaded machine a spinning one made the float32 pass several times slower
+# (measured here: 164 ms for a 1280x720 frame), which would flatter every ratio below.
+_ONE_THREAD = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=7)
     ap.add_argument("--subsample", type=int, default=20000)
     args = ap.parse_args()
+    if any(os.environ.get(k) != v for k, v in _ONE_THREAD.items()):
+        os.execve(sys.executable, [sys.executable, *sys.argv], {**os.environ, **_ONE_THREAD})
+    print(f"load average {os.getloadavg()[0]:.2f} on {os.cpu_count()} cores; BLAS threads: 1")
     img = np.ascontiguousarray(frame())
     net = network()
     plan = fw.Plan.uniform(net, **PLAN)
@@ -130,6 +140,32 @@ def main() -> None:
     rows["ours, new layer-1 weight fraction"] = median_time(
         lambda: fw.emulate(net, plans[fresh[0]], img), args.repeat, alternate
     )
+    # the same three with the compiled loops (what a search, or any process that loaded them, runs;
+    # a single emulation leaves them unloaded: numba's import costs ~0.5 s and ~63 MB)
+    from fxnet_widgets.core.kernel import _compiled
+
+    saved = os.environ.get("FXNET_KERNEL")
+    os.environ["FXNET_KERNEL"] = "numba"
+    try:
+        _compiled.kernels()
+        fw.emulate(net, plan.replace(out_bits=7), img)  # the loops' first call (the JIT figure is bench_sweep's)
+        rows["compiled: first call on a new image"] = median_time(lambda: fw.emulate(net, plan, img), args.repeat,
+                                                                  new_image)  # fmt: skip
+        plans = [plan, plan2]
+        fw.emulate(net, plan, img)
+        rows["compiled: new plan on the same image"] = median_time(
+            lambda: fw.emulate(net, plans[fresh[0]], img), args.repeat, alternate
+        )
+        plans = [plan, plan.replace(layer=0, weight_frac=4)]
+        fw.emulate(net, plan, img)
+        rows["compiled: new layer-1 weight fraction"] = median_time(
+            lambda: fw.emulate(net, plans[fresh[0]], img), args.repeat, alternate
+        )
+    finally:
+        if saved is None:
+            os.environ.pop("FXNET_KERNEL", None)
+        else:
+            os.environ["FXNET_KERNEL"] = saved
     rows["straightforward int64 numpy"] = median_time(lambda: straightforward(q, img), args.repeat)
     scale = n / args.subsample
     rows["fxpmath (scaled from subsample)"] = median_time(lambda: with_fxpmath(q, sub), 3) * scale
@@ -146,6 +182,10 @@ def main() -> None:
     print(f"  new plan / float32        = {again / f32:6.2f}  (target <= 1.0; issue 14: <= 0.5)")
     weights = rows["ours, new layer-1 weight fraction"]
     print(f"  new weight frac / float32 = {weights / f32:6.2f}  (issue 14: <= 0.5)")
+    c_first, c_again = rows["compiled: first call on a new image"], rows["compiled: new plan on the same image"]
+    c_weights = rows["compiled: new layer-1 weight fraction"]
+    print(f"  compiled loops: first {c_first / f32:.2f}, new plan {c_again / f32:.2f}, new weight frac "
+          f"{c_weights / f32:.2f} x float32 (issue 14: <= 1.0, <= 0.5, <= 0.5)")  # fmt: skip
     print(f"  fxpmath / ours (first)    = {rows['fxpmath (scaled from subsample)'] / first:6.0f}  (target >= 100)")
     print(f"  apytypes / ours (first)   = {rows['apytypes (scaled from subsample)'] / first:6.1f}  (target >= 5)")
 

@@ -6,7 +6,7 @@ first; then the case runs with ``tracemalloc`` tracing (numpy reports its
 array buffers to it) and the process's peak resident set (``ru_maxrss``) is
 read before and after. Printed per case: the traced peak above the memory
 held before the case started, and the growth of the peak RSS, both as
-multiples of the frame's bytes. Target (issue 9): <= 20x.
+multiples of the frame's bytes. Target (issues 9 and 14): <= 20x, traced and RSS.
 
 Cases
 -----
@@ -22,6 +22,7 @@ Run: python benchmarks/bench_memory.py
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 import textwrap
@@ -101,7 +102,8 @@ def run_case(body: str) -> dict[str, int]:
 
 
 def main() -> int:
-    print(f"frame 3840x2160x3 uint8 = {FRAME_BYTES:,} bytes; target <= {TARGET:g}x the frame (issue 9)")
+    print(f"frame 3840x2160x3 uint8 = {FRAME_BYTES:,} bytes; target <= {TARGET:g}x the frame (issue 14); "
+          f"load average {os.getloadavg()[0]:.2f}")  # fmt: skip
     print(f"{'case':<18}{'traced peak':>16}{'x frame':>10}{'RSS growth':>16}{'x frame':>10}  verdict")
     worst = 0.0
     for name, body in CASES.items():

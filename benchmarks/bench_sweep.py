@@ -1,7 +1,9 @@
 """Sweep throughput: plans evaluated per second on 100,000 samples of a 3-3-1 network.
 
-Prints plans/s in this process with the numpy reference kernel (``FXNET_KERNEL=numpy``,
-the path every plan took before the compiled loops) and with the compiled loops, their
+Prints plans/s in this process on the numpy reference path (``FXNET_KERNEL=numpy``: the
+numpy loops and the reference evaluation of each plan, ``with_safe_acc`` and ``error_metrics``,
+the path every plan took before the compiled loops) and on the compiled path (the numba loops
+and the search's fast path, ``search/fast.py``; the same records), their
 CPU-time ratio (target >= 3x), the JIT compile time (cold: a fresh process with an empty
 numba cache; warm: a fresh process reading the cache), then plans/s on a local pool of one
 worker and of two workers and the parallel efficiency ``rate(2) / (2 x rate(1))`` (target >= 80 %).
@@ -11,7 +13,11 @@ turn, best of ``--repeat``, each run on plans no earlier run used (so no cache
 helps). Wall-clock efficiency needs idle cores: the load average and the CPU share
 the workers actually got (Linux ``/proc``) are printed beside it. Run::
 
-    python benchmarks/bench_sweep.py [--samples 100000] [--repeat 3]
+    python benchmarks/bench_sweep.py [--samples 100000] [--repeat 3] [--baseline TREE]
+
+``--baseline TREE`` also times the numpy path of another source tree in a subprocess (for
+example ``git archive <commit> fxnet_widgets | tar -x -C TREE``: the code before this work),
+the literal "today's plans/s", on the same grid and plans.
 """
 
 from __future__ import annotations
@@ -81,6 +87,7 @@ sp = np.zeros(4, np.int32); c = np.zeros(4, np.uint8); e = np.zeros(4, np.uint8)
 k.lut_apply(sp, 0, c, e, c, h)
 k.coarse_apply(sp, 0, 0, 1, c, e, c, h, np.empty(4, np.int64))
 k.minmax(sp)
+k.abs_error(c, 0, np.zeros(256), np.zeros(4), np.empty(4))
 print(time.perf_counter() - t)
 """
 
@@ -94,7 +101,7 @@ def compile_seconds(cache_dir: str | None) -> float:
     return float(out.stdout.strip().splitlines()[-1])
 
 
-def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) -> None:
+def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) -> float:
     """The numpy reference kernel against the compiled loops, in this process, in turn, best of N."""
     best: dict[str, tuple[float, float]] = {}
     n_plans = int(np.prod([len(v) for v in grid.values()]))
@@ -115,20 +122,64 @@ def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) ->
             os.environ["FXNET_KERNEL"] = saved
     ref, new = n_plans / best["numpy"][1], n_plans / best["compiled"][1]
     wall_ref, wall_new = n_plans / best["numpy"][0], n_plans / best["compiled"][0]
-    print(f"  numpy reference kernel (FXNET_KERNEL=numpy): {ref:7.1f} plans/s of CPU ({wall_ref:.1f} plans/s wall)")
-    print(f"  compiled kernel (numba):                     {new:7.1f} plans/s of CPU ({wall_new:.1f} plans/s wall)")
+    print(f"  numpy reference path (FXNET_KERNEL=numpy):   {ref:7.1f} plans/s of CPU ({wall_ref:.1f} plans/s wall)")
+    print(f"  compiled path (numba loops, search fast path): {new:5.1f} plans/s of CPU ({wall_new:.1f} plans/s wall)")
     print(f"  speed-up, CPU time:          {new / ref:.2f}x (target >= 3x)")
     with tempfile.TemporaryDirectory() as tmp:
         cold = compile_seconds(tmp)
         warm = compile_seconds(tmp)
     print(f"  JIT: numba import and compile {cold:.2f} s cold (empty cache), {warm:.2f} s warm (from the cache)")
+    return new
+
+
+# One core means one BLAS thread too: the float reference's small products (N x 3 by 3 x 3) gain
+# nothing from a second thread, whose spinning counted as this process's CPU time (measured
+# here: 156 % of one core for a serial sweep) and slowed the other worker. The script restarts
+# itself with these set (pool workers inherit them).
+_ONE_THREAD = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+
+
+_BASELINE = """
+import os, sys, time
+import numpy as np
+sys.path.insert(0, {bench!r})
+from bench_sweep import network
+from fxnet_widgets.core.analysis import SerialExecutor, start_plan, sweep
+from fxnet_widgets.core.kernel import clear_caches
+net = network()
+codes = np.random.default_rng(3).integers(0, 256, ({samples}, 3), dtype=np.uint8)
+grid = {grid!r}
+best = None
+for r in range({repeat}):
+    clear_caches()
+    base = start_plan(net, weight_bits=16 - r)
+    t = time.process_time()
+    sweep(net, codes, grid, base=base, executor=SerialExecutor())
+    cpu = time.process_time() - t
+    best = cpu if best is None else min(best, cpu)
+print(best)
+"""
+
+
+def baseline_rate(tree: str, grid: dict, samples: int, repeat: int) -> float:
+    """Plans/s of CPU of another source tree (e.g. the commit before this work), numpy path, in a subprocess."""
+    code = _BASELINE.format(bench=os.path.dirname(os.path.abspath(__file__)), samples=samples, grid=grid,
+                            repeat=repeat)  # fmt: skip
+    env = {**os.environ, "PYTHONPATH": tree, "FXNET_KERNEL": "numpy"}
+    out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True, check=True)
+    n_plans = int(np.prod([len(v) for v in grid.values()]))
+    return n_plans / float(out.stdout.strip().splitlines()[-1])
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=(__doc__ or "").splitlines()[0])
     ap.add_argument("--samples", type=int, default=100_000)
     ap.add_argument("--repeat", type=int, default=3, help="best of N timings (at most 8)")
+    ap.add_argument("--baseline", metavar="TREE", help="also time the numpy path of another source tree "
+                    "(a checkout of the commit before this work: today's plans/s)")  # fmt: skip
     args = ap.parse_args()
+    if any(os.environ.get(k) != v for k, v in _ONE_THREAD.items()):
+        os.execve(sys.executable, [sys.executable, *sys.argv], {**os.environ, **_ONE_THREAD})
     net = network()
     codes = np.random.default_rng(3).integers(0, 256, (args.samples, 3), dtype=np.uint8)
     grid = {"weight_frac": [3, 4, 5, 6, 7, 8], "table_bits": [8, 9, 10, 11, 12, 13, 14], "out_bits": [6, 8]}
@@ -136,8 +187,12 @@ def main() -> None:
     warm = {"table_bits": [15, 16, 17, 18]}  # plans no timed run uses
     load0 = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"sweep of {n_plans} distinct plans on {args.samples} samples of a 3-3-1 sigmoid network")
-    print(f"  {os.cpu_count()} cores; load average before {load0:.2f}")
-    kernel_ratio(net, codes, grid, min(args.repeat, 8))
+    print(f"  {os.cpu_count()} cores; load average before {load0:.2f}; BLAS threads: 1")
+    new_rate = kernel_ratio(net, codes, grid, min(args.repeat, 8))
+    if args.baseline:
+        base = baseline_rate(args.baseline, grid, args.samples, min(args.repeat, 8))
+        print(f"  baseline tree {args.baseline} (FXNET_KERNEL=numpy): {base:.1f} plans/s of CPU; "
+              f"compiled path here / baseline: {new_rate / base:.2f}x (target >= 3x)")  # fmt: skip
     pools = {}
     for workers in (1, 2):
         t0 = time.perf_counter()

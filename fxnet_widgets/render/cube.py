@@ -19,6 +19,7 @@ import numpy as np
 from PIL import Image, ImageDraw
 
 from .palette import AGREE_POSITIVE, DISAGREE, FIXED_ONLY, FLOAT_ONLY
+from .raster import _check_level, rgb_png
 
 __all__ = ["render_cube", "cube_png"]
 
@@ -184,6 +185,10 @@ def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) ->
 
 def cube_png(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2, compress_level: int = 1) -> bytes:
     """PNG bytes of :func:`render_cube`."""
+    level = _check_level(compress_level)
+    img = render_cube(fixed, float_, size, n_classes)
+    if level <= 1:  # live views: written here, no row-filter search
+        return rgb_png(img, level)
     buf = io.BytesIO()
-    Image.fromarray(render_cube(fixed, float_, size, n_classes)).save(buf, format="PNG", compress_level=compress_level)
+    Image.fromarray(img).save(buf, format="PNG", compress_level=level)
     return buf.getvalue()

@@ -108,6 +108,27 @@ def _indexed_png(idx: np.ndarray, pal: np.ndarray, level: int, strategy: int) ->
     ))  # fmt: skip
 
 
+def rgb_png(img: np.ndarray, level: int) -> bytes:
+    """A truecolour PNG (colour type 2, 8 bits a sample) of an H x W x 3 uint8 array, per the PNG
+    specification (W3C / ISO/IEC 15948): filter 0 on every row, one deflate stream.
+
+    For live views (``level`` 0 or 1): about a quarter of pillow's time on a 256 x 256
+    picture (pillow also tries the row filters).
+    """
+    h, w, _ = img.shape
+    raw = np.empty((h, 3 * w + 1), dtype=np.uint8)
+    raw[:, 0] = 0  # filter type 0 (none)
+    raw[:, 1:] = np.ascontiguousarray(img, dtype=np.uint8).reshape(h, 3 * w)
+    z = zlib.compressobj(level, zlib.DEFLATED, 15, 8, zlib.Z_DEFAULT_STRATEGY)
+    data = z.compress(raw.tobytes()) + z.flush()
+    return b"".join((
+        b"\x89PNG\r\n\x1a\n",
+        _png_chunk(b"IHDR", struct.pack(">IIBBBBB", w, h, 8, 2, 0, 0, 0)),
+        _png_chunk(b"IDAT", data),
+        _png_chunk(b"IEND", b""),
+    ))  # fmt: skip
+
+
 def palette_png(index: Any, palette: Any, compress_level: int = 1, *, _strategy: int = _Z_DEFAULT) -> bytes:
     """PNG bytes of an H x W array of palette indices (< 256) and an (n, 3) uint8 palette."""
     idx = np.asarray(index)

@@ -19,6 +19,8 @@ from .results import NeuronResult, layer_kind
 
 __all__ = ["histogram_edges", "table_edges", "exact_sums", "BinCounter", "neuron_results"]
 
+_CHUNK = 1 << 20  # samples per bincount step
+
 
 def exact_sums(emulation: Emulation, layer: int) -> np.ndarray:
     """The exact sums ``s`` (before the accumulator, N x n_out int64) of one layer.
@@ -87,16 +89,14 @@ class BinCounter:
         if hit is not None and hit[0]() is d and not d.flags.writeable:
             self._cache.move_to_end(key)
             return hit[1]
-        top = int(emulation.observed_max[layer][neuron]) - origin
-        if top < 2**31 and off >= 0:
-            idx = d.astype(np.int32)
+        counts = np.zeros(n_bins, dtype=np.int64)
+        for a in range(0, d.shape[0], _CHUNK):  # bincount copies to intp: bounded temporaries on a large frame
+            idx = d[a : a + _CHUNK].astype(np.int64)
             if off:
-                idx += np.int32(off)
-        else:
-            idx = d.astype(np.int64) + np.int64(off)
-        if shift:
-            idx >>= shift
-        counts = np.bincount(idx, minlength=n_bins)[:n_bins]
+                idx += np.int64(off)
+            if shift:
+                idx >>= shift
+            counts += np.bincount(idx, minlength=n_bins)[:n_bins]
         if not d.flags.writeable:  # read-only: the values behind this identity cannot change
             counts.setflags(write=False)
             self._cache[key] = (weakref.ref(d), counts)

@@ -7,12 +7,15 @@ its figures (error metrics, the float-versus-fixed agreement matrix, argmax ties
 
 from __future__ import annotations
 
+import weakref
+from collections import OrderedDict
 from itertools import combinations
 
 import numpy as np
 
-from ..core.analysis.metrics import error_metrics
+from ..core.analysis.metrics import error_metrics, pair_counts
 from ..core.kernel import Emulation, emulate
+from ..core.kernel.evaluate import Prepared, prepare
 from ..core.plan import Plan
 from ..render.raster import DownscaledImage
 from .data import SessionData
@@ -21,13 +24,38 @@ from .results import SLICES, CubeResult, DataFigures, ImageResult, SampleResult,
 __all__ = ["image_part", "samples_part", "slices_part", "cube_part", "data_figures", "argmax_ties"]
 
 
+_PREPARED: OrderedDict[tuple[int, int, int], tuple[weakref.ref, Prepared]] = OrderedDict()
+
+
+def _prepared(codes: np.ndarray, bits: int, n_in: int) -> np.ndarray | Prepared:
+    """The kernel's decomposition of a read-only array that owns its memory, hashed once per array.
+
+    Such an array's values cannot change behind its identity (as in :class:`.binning.BinCounter`),
+    so every refresh of a session reuses the decomposition instead of hashing the frame again;
+    any other array is handed to the kernel as it is (hashed there, by value).
+    """
+    if codes.flags.writeable or codes.base is not None:
+        return codes
+    key = (id(codes), bits, n_in)
+    hit = _PREPARED.get(key)
+    if hit is not None and hit[0]() is codes:
+        _PREPARED.move_to_end(key)
+        return hit[1]
+    prep = prepare(codes, bits, n_in)
+    _PREPARED[key] = (weakref.ref(codes), prep)
+    while len(_PREPARED) > 4:
+        _PREPARED.popitem(last=False)
+    return prep
+
+
 def image_part(data: SessionData, plan: Plan, full_resolution: bool) -> ImageResult:
     assert data.image is not None and data.preview is not None
     if full_resolution or not data.preview.downscaled:
         codes, factor = data.image, 1
     else:
         codes, factor = data.preview.codes, data.preview.factor
-    emu = emulate(data.network, plan, codes)
+    net = data.network
+    emu = emulate(net, plan, _prepared(codes, net.input_bits, net.n_in))
     h, w = data.image.shape[:2]
     note = DownscaledImage(codes, factor, (h, w)).note
     labels = None
@@ -38,7 +66,8 @@ def image_part(data: SessionData, plan: Plan, full_resolution: bool) -> ImageRes
 
 def samples_part(data: SessionData, plan: Plan) -> SampleResult:
     assert data.samples is not None
-    emu = emulate(data.network, plan, data.samples)
+    net = data.network
+    emu = emulate(net, plan, _prepared(data.samples, net.input_bits, net.n_in))
     return SampleResult(data.samples, data.labels, emu.decisions, emu.float_decisions, emu)
 
 
@@ -77,7 +106,8 @@ def slices_part(data: SessionData, plan: Plan, pos: tuple[int, int, int],
 
 def cube_part(data: SessionData, plan: Plan) -> CubeResult:
     assert data.cube_input is not None
-    emu = emulate(data.network, plan, data.cube_input)
+    net = data.network
+    emu = emulate(net, plan, _prepared(data.cube_input, net.input_bits, net.n_in))
     n = data.cube_codes.size
     return CubeResult(data.cube_codes, emu.decisions.reshape(n, n, n), emu.float_decisions.reshape(n, n, n))
 
@@ -105,6 +135,6 @@ def data_figures(name: str, emulation: Emulation, labels: np.ndarray | None, n_c
     m = error_metrics(emulation, labels)
     fl = np.asarray(emulation.float_decisions).reshape(-1)
     fx = np.asarray(emulation.decisions).reshape(-1)
-    pairs = np.bincount(fl * n_classes + fx, minlength=n_classes * n_classes).reshape(n_classes, n_classes)
+    pairs = pair_counts(fl, fx, n_classes)
     agreement = tuple(tuple(int(v) for v in row) for row in pairs)
     return DataFigures(name, m, agreement, argmax_ties(emulation.out_codes))

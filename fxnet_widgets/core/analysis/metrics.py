@@ -23,7 +23,7 @@ import numpy as np
 
 from ..kernel import Emulation
 
-__all__ = ["ErrorMetrics", "error_metrics", "check_labels"]
+__all__ = ["ErrorMetrics", "error_metrics", "check_labels", "pair_counts"]
 
 
 def check_labels(
@@ -127,6 +127,23 @@ class ErrorMetrics:
 
 
 _LUT_CODES = 1 << 16  # output code ranges up to this size go through a value table
+_CHUNK = 1 << 20  # samples per step of the chunked passes (bounded temporaries on a large frame)
+
+
+def pair_counts(rows: np.ndarray, cols: np.ndarray, k: int) -> np.ndarray:
+    """The k x k counts of the pairs ``(rows[i], cols[i])`` (class indices below ``k``), chunk by chunk.
+
+    >>> pair_counts(np.array([0, 1, 1, 1]), np.array([0, 1, 0, 1]), 2).tolist()
+    [[1, 0], [1, 2]]
+    """
+    rows, cols = np.asarray(rows).reshape(-1), np.asarray(cols).reshape(-1)
+    out = np.zeros(k * k, dtype=np.int64)
+    for a in range(0, rows.shape[0], _CHUNK):
+        pair = rows[a : a + _CHUNK].astype(np.int64)
+        pair *= k
+        pair += cols[a : a + _CHUNK]
+        out += np.bincount(pair, minlength=k * k)
+    return out.reshape(k, k)
 
 
 def _abs_errors(result: Emulation, last: Any, out_frac: int) -> np.ndarray:
@@ -144,15 +161,20 @@ def _abs_errors(result: Emulation, last: Any, out_frac: int) -> np.ndarray:
         return np.abs(fixed - ref)
     table = np.ldexp(np.arange(lo, hi + 1, dtype=np.float64), -out_frac)
     li = len(result.integer_network.layers) - 1
-    err = np.empty((n, n_out), dtype=np.float64)
+    err = np.empty((n, n_out), dtype=np.float64) if n_out > 1 else None
     for j in range(n_out):
         codes = result.neuron_codes(li, j)
-        col = table.take(codes if lo == 0 else codes.astype(np.int64) - lo)
+        col = np.empty(n, dtype=np.float64)
+        for a in range(0, n, _CHUNK):  # take copies its index to intp: a chunk at a time, not 8 bytes a sample
+            b = min(a + _CHUNK, n)
+            c = codes[a:b]
+            table.take(c if lo == 0 else c.astype(np.int64) - lo, out=col[a:b])
         np.subtract(col, ref[:, j], out=col)
         np.abs(col, out=col)
-        if n_out == 1:
+        if err is None:
             return col.reshape(n, 1)
         err[:, j] = col
+    assert err is not None
     return err
 
 
@@ -200,9 +222,7 @@ def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
         lab = check_labels(labels, n, result.shape, k)
         accuracy = float(np.count_nonzero(dec == lab) / n) if n else 0.0
         float_accuracy = float(np.count_nonzero(fdec == lab) / n) if n else 0.0
-        pair = lab * k
-        pair += dec
-        cm = np.bincount(pair, minlength=k * k).reshape(k, k)
+        cm = pair_counts(lab, dec, k)
         confusion = tuple(tuple(int(v) for v in row) for row in cm)
     scale = 2.0**out_frac
     return ErrorMetrics(

@@ -1,18 +1,21 @@
 """Fused per-sample loops of the kernel (numba), compiled on first use, cached on disk.
 
-Two loops, both pure gathers and integer additions (no rounding, no overflow
+The loops are pure gathers, integer additions and comparisons (no rounding, no overflow
 mode: those stay in :mod:`..formats`, applied by :func:`.accumulate.post_accumulate`
 to the look-up domain):
 
 ``dense_sums``  every neuron's exact sum minus ``sum_min`` from product tables
                 gathered by input code, and each neuron's observed min and max,
-                in one pass over the samples (numpy: two passes per input and neuron)
+                in one pass over the samples (numpy: two passes per input and neuron);
+                the first layer reads the per-input code columns stacked
 ``lut_apply``   a neuron's codes read from its steps 4-7 look-up table and the
                 histogram of its event bits, in one pass (numpy: three)
 ``coarse_apply`` the same from a table over buckets of ``2**b`` sums, for a neuron whose steps
                 4-7 are monotone in the sum (no accumulator overflow on the data): a bucket
-                whose two ends give the same code and events gives them throughout; the
-                samples of the other buckets are listed and computed exactly
+                whose first sum and the next bucket's give the same code and events gives
+                them throughout; the samples of the other buckets are listed and computed exactly
+``abs_error``   ``|value[code] - float|`` per sample in float64, the numpy path's operations
+                fused (a search's output error; numpy's own ``max`` and ``mean`` follow)
 
 ``FXNET_KERNEL`` (read at every call) chooses: ``numpy`` the numpy reference path, ``numba``
 the compiled loops; unset (auto), the loops run once they are loaded (:func:`kernels`), which
@@ -130,6 +133,14 @@ class _Kernels:
                     hi = v
             return lo, hi
 
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def abs_error(codes: np.ndarray, lo: int, values: np.ndarray, ref: np.ndarray,
+                      out: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # |values[code - lo] - ref| per sample: the float64 operations of the numpy path, fused
+            for i in range(codes.shape[0]):
+                out[i] = abs(values[np.int64(codes[i]) - lo] - ref[i])
+
+        self.abs_error = abs_error
         self.dense_sums = dense_sums
         self.lut_apply = lut_apply
         self.coarse_apply = coarse_apply

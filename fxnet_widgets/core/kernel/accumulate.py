@@ -17,10 +17,17 @@ from .layers import IntegerLayer
 __all__ = ["post_accumulate", "smallest_int"]
 
 
+_SIGNED = tuple((dt, int(np.iinfo(dt).min), int(np.iinfo(dt).max)) for dt in (np.int8, np.int16, np.int32))
+
+
 def smallest_int(lo: int, hi: int) -> type:
-    for dt in (np.int8, np.int16, np.int32):
-        info = np.iinfo(dt)
-        if info.min <= lo and hi <= info.max:
+    """The narrowest signed integer type holding ``[lo, hi]`` (int64 beyond int32).
+
+    >>> smallest_int(-128, 127).__name__, smallest_int(0, 128).__name__, smallest_int(0, 1 << 40).__name__
+    ('int8', 'int16', 'int64')
+    """
+    for dt, a, b in _SIGNED:
+        if a <= lo and hi <= b:
             return dt
     return np.int64
 

@@ -12,7 +12,11 @@ from collections.abc import Callable, Hashable
 from typing import Any
 
 __all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
+           "WEIGHT_CACHE",
            "clear_caches", "cache_stats"]  # fmt: skip
+
+
+_MISSING = object()
 
 
 class LRU:
@@ -28,10 +32,11 @@ class LRU:
     def get(self, key: Hashable, make: Callable[[], Any]) -> Any:
         """The value of ``key``, made with ``make()`` (outside the lock) on a miss."""
         with self.lock:
-            if key in self.data:
+            value = self.data.get(key, _MISSING)
+            if value is not _MISSING:
                 self.data.move_to_end(key)
                 self.hits += 1
-                return self.data[key]
+                return value
         value = make()
         with self.lock:
             self.misses += 1
@@ -60,9 +65,13 @@ SUM_CACHE = LRU(4)
 #: activation tables (read-only) by their :class:`.tables.TableSpec`: plans that differ only
 #: in fields a table does not depend on (the accumulator width, the weights' values) share it
 TABLE_CACHE = LRU(256)
+#: one layer's weight codes, raw bias codes and safe widths by (network digest, layer, weight
+#: fields, input format): plans that differ in the accumulator, table or output fields share them
+WEIGHT_CACHE = LRU(256)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
-          "sums": SUM_CACHE, "table": TABLE_CACHE}  # fmt: skip
+          "sums": SUM_CACHE, "table": TABLE_CACHE,
+          "weights": WEIGHT_CACHE}  # fmt: skip
 
 
 def clear_caches() -> None:

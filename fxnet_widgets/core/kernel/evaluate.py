@@ -192,8 +192,10 @@ def sums_and_bounds(
 ) -> tuple[list[np.ndarray], Bounds]:
     """:func:`layer_sums` and, per neuron, their min and max on the data (compiled where it runs)."""
     n = prep.n if prev_codes is None and prep is not None else (prev_codes.shape[1] if prev_codes is not None else 0)
-    if prev_codes is not None and n and _compiled.use_compiled(n):
-        done = _dense_compiled(layer, prev_codes)
+    if n and _compiled.use_compiled(n):
+        # the first layer reads the per-input code columns, stacked (n_in, N): one pass for every neuron
+        x = prev_codes if prev_codes is not None else np.stack(prep.columns) if prep is not None else None
+        done = _dense_compiled(layer, x) if x is not None else None
         if done is not None:
             return done
     sums = layer_sums(layer, prep, prev_codes, bits)
@@ -273,7 +275,7 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
 
     Applies when no sum on the data can overflow the accumulator: then the code, ``table_low``
     and ``table_high`` are monotone in the sum (rounding, clamp and the table's entries are), so a
-    bucket whose first and last sum agree on all three agrees throughout.
+    bucket whose first sum and the next bucket's first sum agree on all three agrees throughout.
     """
     lo = layer.sum_min[j]
     alo, ahi = signed_range(layer.plan.acc_bits)
@@ -285,12 +287,15 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
     if b == 0:
         return False
     nb = ((m1 - m0) >> b) + 1
-    starts = m0 + (np.arange(nb, dtype=np.int64) << np.int64(b))
-    ends = np.minimum(starts + ((1 << b) - 1), m1)
-    out = post_accumulate(layer, np.concatenate((starts, ends)) + np.int64(lo), lo + m0, lo + m1)
-    c, ev = out["codes"], _event_bits(out, 2 * nb)
+    # every bucket's first sum and the last sum m1: bucket q agrees throughout when its first sum and
+    # the next bucket's (for the last, m1) agree, as all sums between them do (monotone); a step just
+    # at the next bucket's start only sends this bucket's samples to the exact path
+    pts = m0 + (np.arange(nb + 1, dtype=np.int64) << np.int64(b))
+    pts[nb] = m1
+    out = post_accumulate(layer, pts + np.int64(lo), lo + m0, lo + m1)
+    c, ev = out["codes"], _event_bits(out, nb + 1)
     ev_q = ev[:nb].copy()
-    ev_q[(c[:nb] != c[nb:]) | (ev[:nb] != ev[nb:])] = 128  # a step inside: its samples are computed exactly
+    ev_q[(c[:nb] != c[1:]) | (ev[:nb] != ev[1:])] = 128  # a step inside: its samples are computed exactly
     hist = np.zeros(8, dtype=np.int64)
     idx = np.empty(min(n, _MIXED_CHUNK), dtype=np.int64)  # bounded: no per-sample index array on a large frame
     codes_q = np.ascontiguousarray(c[:nb], dtype=row.dtype)
@@ -308,6 +313,35 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
     return True
 
 
+def _lut_fits(m0: int, m1: int, n: int) -> bool:
+    """Whether a neuron whose offset sums span ``[m0, m1]`` on ``n`` samples gets an exact look-up table."""
+    span = m1 - m0 + 1
+    return span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024  # m1: the LUT length
+
+
+def _shared_domain(layer: IntegerLayer, ms: list[tuple[int, int]], n: int,
+                   compiled: bool) -> tuple[int, int, dict[str, Any]] | None:  # fmt: skip
+    """Steps 4-7 once over the union of the look-up domains of a layer's neurons, when it saves work.
+
+    :func:`.accumulate.post_accumulate` is a function of the sum alone for one layer's plan (every
+    neuron shares the accumulator, shift and table), so each neuron's look-up table is a slice of
+    one over the union ``[u0, u1]``. Used when at least two neurons take a look-up table and the
+    union is smaller than their domains together (they overlap). None: each neuron computes its own.
+    """
+    doms = []
+    for j, (m0, m1) in enumerate(ms):
+        wide = m1 - m0 + 1 >= max(_COARSE_MIN_SPAN, n // 2)
+        if _lut_fits(m0, m1, n) and not (compiled and wide):  # a wide one takes the bucket path first
+            lo = layer.sum_min[j]
+            doms.append((lo + m0, lo + m1))
+    if len(doms) < 2:
+        return None
+    u0, u1 = min(d[0] for d in doms), max(d[1] for d in doms)
+    if u1 - u0 + 1 >= sum(b - a + 1 for a, b in doms):
+        return None
+    return u0, u1, post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
+
+
 def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
     """Steps 4-7 on the offset sums ``shifted``; ``bounds``: their per-neuron min and max, when known."""
     n = shifted[0].shape[0] if shifted else 0
@@ -320,13 +354,15 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
     acc_direct: list[Any] = []
     obs_min = np.zeros(layer.n_out, dtype=np.int64)
     obs_max = np.zeros(layer.n_out, dtype=np.int64)
+    # the look-up table of neuron j covers only the sums seen on the data: [lo + m0, lo + m1]
+    if bounds is not None and n:
+        ms = [(int(a), int(b)) for a, b in zip(bounds[0], bounds[1])]
+    else:
+        ms = [(int(sp.min()), int(sp.max())) if n else (0, 0) for sp in shifted]
+    shared = _shared_domain(layer, ms, n, kern is not None)
     for j, sp in enumerate(shifted):
         lo = layer.sum_min[j]
-        # the look-up table covers only the sums seen on the data: [lo + m0, lo + m1]
-        if bounds is not None and n:
-            m0, m1 = int(bounds[0][j]), int(bounds[1][j])
-        else:
-            m0, m1 = (int(sp.min()), int(sp.max())) if n else (0, 0)
+        m0, m1 = ms[j]
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
@@ -334,9 +370,15 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         if kern is not None and wide and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
             acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
             continue
-        if span <= _LUT_MAX and m1 < _LUT_MAX and span <= _LUT_FRACTION * n + 1024:  # m1: the LUT length
-            dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
-            out = post_accumulate(layer, dom, lo + m0, lo + m1)
+        if _lut_fits(m0, m1, n):
+            if shared is not None and shared[0] <= lo + m0 and lo + m1 <= shared[1]:
+                a = lo + m0 - shared[0]
+                out: dict[str, Any] = {k: None if v is None else v[a : a + span] for k, v in shared[2].items()}
+                if out["acc_overflow"] is not None and not out["acc_overflow"].any():
+                    out["acc_overflow"] = None  # s_A is the exact sum on this neuron's domain
+            else:
+                dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
+                out = post_accumulate(layer, dom, lo + m0, lo + m1)
 
             def lut(v: np.ndarray, dt: Any = None, m0: int = m0) -> np.ndarray:
                 # indexed by sp directly: entries below m0 are never read

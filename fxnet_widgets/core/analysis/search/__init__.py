@@ -9,14 +9,16 @@ Evaluation runs on a local process pool by default, or on any
 :class:`concurrent.futures.Executor` (a ``dask.distributed`` ``Client`` works
 as one). The plans are cut into a few chunks per worker; each task carries the
 network document, the input codes and its chunk's plan documents, so the data
-travels once per chunk, never once per plan. Results are identical whatever
+travels once per chunk, never once per plan (to a local pool, once per worker:
+through one shared-memory block, :mod:`.shared`). Results are identical whatever
 runs them: every plan is evaluated by the same deterministic code and records
 come back in grid order.
 
 Modules: :mod:`.executors` (where plans run, worker counts), :mod:`.progress`
 (progress callbacks), :mod:`.records` (:class:`SweepRecord`), :mod:`.evaluate`
 (chunked evaluation), :mod:`.grid` (grid text, checks, applying settings),
-:mod:`.sweeps`, :mod:`.pareto`, :mod:`.tuning`. Starting plans are in
+:mod:`.sweeps`, :mod:`.pareto`, :mod:`.tuning`, :mod:`.fast` (one plan's record on the
+compiled path), :mod:`.shared`. Starting plans are in
 :mod:`fxnet_widgets.core.starting`.
 
 Examples

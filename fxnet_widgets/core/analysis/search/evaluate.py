@@ -1,9 +1,10 @@
 """Evaluating plans on data, in chunks, on any executor; records come back in order.
 
-Each task carries the network document, the input codes and one chunk of
-:class:`PlanTask` records, so the data travels once per chunk, never once per
-plan. Every plan is evaluated by the same deterministic code, so the records
-are identical whatever runs them.
+Each task carries the network document, the input codes (for a local pool, a
+handle to one shared-memory block) and one chunk of :class:`PlanTask` records,
+so the data travels at most once per chunk, never once per plan. Every plan is
+evaluated by the same deterministic code, so the records are identical whatever
+runs them.
 """
 
 from __future__ import annotations
@@ -24,8 +25,10 @@ from ...starting import start_plan, with_safe_acc
 from ..cost import COST_KEYS, hardware_cost
 from ..metrics import check_labels, error_metrics
 from .executors import Runner
+from .fast import evaluate_fast
 from .progress import Progress
 from .records import SweepRecord
+from .shared import SharedCodes, share_codes
 
 __all__ = [
     "PlanTask", "argmax_ties", "base_plan", "evaluate", "evaluate_plans", "check_cost_key", "check_cost_options",
@@ -106,13 +109,22 @@ def argmax_ties(out_codes: np.ndarray, decisions: np.ndarray, float_decisions: n
 
 
 def _run_chunk(
-    net_doc: dict[str, Any], codes: np.ndarray, labels: np.ndarray | None, tasks: list[PlanTask], cost_key: str,
-    options: dict[str, Any],
+    net_doc: dict[str, Any], codes: np.ndarray | SharedCodes, labels: np.ndarray | None, tasks: list[PlanTask],
+    cost_key: str, options: dict[str, Any],
 ) -> list[SweepRecord]:  # fmt: skip
     """Evaluate one chunk of plans (runs in a worker)."""
     net = _network_from(net_doc)
-    _compiled.load_for(codes.shape[0])  # many plans on the same data: the compiled loops pay for their import
-    prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
+    if isinstance(codes, SharedCodes):  # decomposed once per worker and data (not hashed per chunk)
+        prep = codes.prepared(net.input_bits, net.n_in)
+    else:
+        prep = prepare(codes, net.input_bits, net.n_in)  # hashed once per chunk, not once per plan
+    _compiled.load_for(prep.n)  # many plans on the same data: the compiled loops pay for their import
+    if _compiled.use_compiled(prep.n):  # the fast path (same records; FXNET_KERNEL=numpy: the reference)
+        return [
+            evaluate_fast(net, prep, labels, t.index, t.settings, Plan.from_dict(t.plan_doc), t.safe_acc, cost_key,
+                          options)
+            for t in tasks
+        ]  # fmt: skip
     return [_evaluate_one(net, prep, labels, t, cost_key, options) for t in tasks]
 
 
@@ -173,13 +185,15 @@ def evaluate(
     bounds = np.linspace(0, total, n_chunks + 1).round().astype(int)
     doc = network.to_dict()
     futures = {}
-    for a, b in zip(bounds[:-1], bounds[1:]):
-        if b > a:
-            fut = runner.executor.submit(_run_chunk, doc, codes, labels, tasks[a:b], cost_key, options)
-            futures[fut] = b - a
+    shared = share_codes(codes) if runner.local and n_chunks > 1 else None
+    payload = codes if shared is None else shared.handle
     done = 0
     records: list[SweepRecord] = []
     try:
+        for a, b in zip(bounds[:-1], bounds[1:]):
+            if b > a:
+                fut = runner.executor.submit(_run_chunk, doc, payload, labels, tasks[a:b], cost_key, options)
+                futures[fut] = b - a
         for fut in cf.as_completed(futures):
             records.extend(fut.result())
             done += futures[fut]
@@ -189,6 +203,9 @@ def evaluate(
         for fut in futures:
             fut.cancel()
         raise
+    finally:
+        if shared is not None:
+            shared.release()
     records.sort(key=lambda r: r.index)
     return records
 

@@ -130,6 +130,11 @@ class Runner:
         """True when the tasks run in this process, one after the other."""
         return isinstance(self.executor, SerialExecutor)
 
+    @property
+    def local(self) -> bool:
+        """True for a :func:`local_pool` (workers on this machine: the data can go through shared memory)."""
+        return isinstance(self.executor, _LocalPool)
+
     def close(self) -> None:
         """Shut down the pool if this runner made it."""
         if self.owned:
