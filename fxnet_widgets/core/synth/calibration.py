@@ -204,33 +204,32 @@ def estimate(network: Network, plan: Plan, target: str = "ice40-up5k") -> dict[s
 def calibration_plans(network: Network, n: int, seed: int) -> list[Plan]:
     """``n`` plans of ``network`` drawn at random (seeded): the generated calibration set.
 
-    Per layer: weights of 3-12 bits with 1-3 integer bits, rounding half-even; table
-    address of 1-12 bits covering sums up to +-4 .. +-16; output 1-10 bits; the
-    accumulator at its safe width minus 0-2 bits, wrapping or saturating (every plan
-    alike); index rounding floor or half-even.
+    Drawn as ``tune`` and ``sweep`` see plans: from ``start_plan`` (the start of
+    ``tune``: 16-bit weights, 14-bit tables, 12-bit outputs, safe accumulators), 0-24
+    random ``tune`` moves (kind, layer and 1, 2 or 4 bits drawn uniformly; a move the
+    plan's limits refuse is drawn again), then, per plan, the accumulator overflow
+    (wrap or saturate) and the index rounding (floor or half-even) drawn as a sweep
+    grid varies them. No plan is dropped, however small the tools fold it.
     """
+    from ..analysis.search.tuning import STEPS, TUNE_MOVES, move
+    from ..starting import start_plan
+
     rng = np.random.default_rng(seed)
+    base = start_plan(network)
     plans = []
     for _ in range(n):
-        overflow = str(rng.choice(["wrap", "saturate"]))
-        index_round = str(rng.choice(["floor", "half-even"]))
-        docs, in_frac = [], network.input_bits
-        for L in network.layers:
-            wb = int(rng.integers(3, 13))
-            wf = wb - int(rng.integers(1, 4))
-            doc: dict[str, Any] = {"weight_bits": wb, "weight_frac": wf, "acc_bits": 62, "acc_overflow": overflow,
-                                   "index_round": index_round, "out_bits": int(rng.integers(1, 11))}  # fmt: skip
+        plan = base
+        for _ in range(int(rng.integers(0, 25))):
+            for _ in range(100):
+                m = move(network, plan, int(rng.integers(len(network.layers))), str(rng.choice(TUNE_MOVES)),
+                         int(rng.choice(STEPS)))  # fmt: skip
+                if m is not None:
+                    plan = m.plan
+                    break
+        overflow, index_round = str(rng.choice(["wrap", "saturate"])), str(rng.choice(["floor", "half-even"]))
+        docs = [dict(lp.to_dict(), acc_overflow=overflow) for lp in plan.layers]
+        for d, L in zip(docs, network.layers):
             if L.has_table:
-                doc["table_bits"] = int(rng.integers(1, 13))
-                doc["table_frac"] = doc["table_bits"] - int(rng.integers(3, 6))
-                in_frac = doc["out_bits"] if L.activation == "sigmoid" else doc["out_bits"] - 1
-            else:
-                doc["out_frac"] = in_frac + wf - int(rng.integers(2, 6))
-                in_frac = doc["out_frac"]
-            docs.append(doc)
-        plan = Plan(tuple(LayerPlan.from_dict(d) for d in docs))
-        safe = build_integer_network(network, plan)
-        for d, q in zip(docs, safe.layers):
-            d["acc_bits"] = int(max(2, int(q.safe_acc_bits.max()) - int(rng.integers(0, 3))))
+                d["index_round"] = index_round
         plans.append(Plan(tuple(LayerPlan.from_dict(d) for d in docs)))
     return plans
