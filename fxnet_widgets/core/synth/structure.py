@@ -1,54 +1,60 @@
-"""Counts read off the generated datapath itself, after the constant folding synthesis does.
+"""Counts read off the generated datapath itself, after the folding synthesis does on its own.
 
 :func:`structure` walks the levels and register banks that
-:func:`~fxnet_widgets.core.datapath.plan_datapath` builds (the very structure the
-Verilog writer prints) and counts, per operation class, the bits that logic must
-compute once the folds that Yosys makes on its own are applied:
+:func:`~fxnet_widgets.core.datapath.plan_datapath` builds (the structure the Verilog
+writer prints) bit by bit. Every bit of every signal is a *net*: a constant, a copy
+of another net (wiring: shifts by a power of two, sign extension, bit selection),
+or the output of one operation on named input nets. Equal operations on equal nets
+are one net (Yosys's ``opt_merge``); a register bank turns each net into a register
+net, and a register of a constant is the constant (``opt_dff``). Liveness runs
+backwards from the output ports over these nets, so logic nothing reads is gone, a
+sum whose consumers keep its low bits only is that narrow, and a table word bit that
+is the same in every word the address can reach is a constant.
 
-* bits known to be constant from the structure: the low zero bits of a shifted
-  product (a power-of-two weight digit) and of sums of such terms, constants, and
-  the bits of a table word that are equal in every word of the table;
-* bits nothing live reads (dead logic is removed): liveness runs backwards from the
-  output ports; a table whose every word is one constant reads no address; a sum
-  whose consumer keeps only its low bits is as narrow as those bits;
-* each table ROM is a block RAM or logic by the rule of Yosys's ``memory_libmap``:
-  a block RAM when its read is registered and the block RAMs cost less than the
-  ROM's bits at the soft-logic cost per ROM bit (:data:`LOGIC_COST_ROM`); the block
-  cost per device is that of Yosys's own memory library files (quoted below).
+Each table ROM is a block RAM or logic by the rule of Yosys's ``memory_libmap``: a
+block RAM when its read is registered and its blocks cost less than its bits at the
+soft-logic cost of a ROM bit (:data:`LOGIC_COST_ROM`, block costs in
+:data:`ROM_RULES`). Of a block RAM, the blocks whose depth slice no address reaches
+are removed; Yosys tells the slices apart by the address nets (the copies of a sign
+bit are one net, its inverse another).
 
-Yosys sees the structure, not the value intervals, so a signal that only the
-intervals prove constant (say, a layer whose every input lands on one table word)
-still costs logic here, as it does after synthesis. What the counts are per class
-is listed at :class:`Structure`; :mod:`.calibration` fits a few coefficients on them.
+Yosys sees structure, not value intervals, so a signal that only the intervals prove
+constant still costs logic here, as it does after synthesis. :class:`Structure` lists
+the counts; :mod:`.calibration` fits a few coefficients per target on them.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
-from ..datapath._graph import Sig
-from ..datapath._resolve import Resolved, _clamp_use, _round_use
+from ..datapath._graph import Sig, round_bits, wrap_to
+from ..datapath._resolve import Resolved
 
-__all__ = ["Structure", "structure", "ROM_RULES", "LOGIC_COST_ROM", "dsp48_count"]
+__all__ = ["Structure", "structure", "ROM_RULES", "LOGIC_COST_ROM", "LUT_FEATURES", "dsp48_count", "family"]
 
-#: soft-logic cost of one ROM bit in Yosys 0.23 ``memory_libmap`` (its default; from memory,
-#: confirmed on the calibration set: every block-RAM count of the benchmark agrees)
-LOGIC_COST_ROM = 1.0 / 16.0
-#: per target family: ``(cost of one block, ((depth, width) shapes))``. iCE40: ``cost 64`` of
-#: ``$__ICE40_RAM4K_`` in Yosys's ``share/ice40/brams.txt``, abits 11 (2048 x 2 .. 256 x 16).
-#: Xilinx 7: ``cost 129`` of the 18 kbit (``HALF``) RAMB18 in ``share/xilinx/brams_xc4v.txt``,
-#: 16384 x 1 .. 512 x 36 (UG473 RAMB18E1 shapes, from memory).
+#: soft-logic cost of one ROM bit that ``memory_libmap`` weighs against the block cost, per family:
+#: 1/16 on iCE40 (the pass's default; from memory) and 1/64 on Xilinx 7 (found on the calibration
+#: set: ROMs of 7168 and 8192 bits stay in LUTs, 11264 bits take a RAMB18)
+LOGIC_COST_ROM = {"ice40": 1.0 / 16.0, "xilinx-7": 1.0 / 64.0}
+#: per target family: ``(cost of one block, (depth, width) shapes)``. iCE40: ``cost 64`` of
+#: ``$__ICE40_RAM4K_`` in Yosys's ``share/ice40/brams.txt`` (abits 11, widths 2 4 8 16).
+#: Xilinx 7: ``cost 129`` of the 18 kbit (``HALF``) block in ``share/xilinx/brams_xc4v.txt``,
+#: RAMB18E1 shapes 16384 x 1 .. 512 x 36 (7 Series Memory Resources, UG473; from memory).
 ROM_RULES: dict[str, tuple[float, tuple[tuple[int, int], ...]]] = {
     "ice40": (64.0, ((2048, 2), (1024, 4), (512, 8), (256, 16))),
     "xilinx-7": (129.0, ((16384, 1), (8192, 2), (4096, 4), (2048, 9), (1024, 18), (512, 36))),
 }
 _LUT_INPUTS = {"ice40": 4, "xilinx-7": 6}
+#: the LUT features of :meth:`Structure.features`, in order
+LUT_FEATURES = ("add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects")
 
 
-def _family(target: str) -> str:
+def family(target: str) -> str:
+    """``"ice40"`` or ``"xilinx-7"``: the structural rules a target follows."""
     if target.startswith("ice40"):
         return "ice40"
     if target in ROM_RULES:
@@ -58,17 +64,17 @@ def _family(target: str) -> str:
 
 @dataclass(frozen=True)
 class Structure:
-    """Bit counts of one datapath on one target family (all after constant folding and dead-logic removal).
+    """Live bit counts of one datapath on one target family (after folding and dead-logic removal).
 
-    ``add_bits``: adder and subtractor bits (sums, negated power-of-two products, rounding
-    increments); ``cmp_bits``: comparator bits (saturation, clamps, threshold, argmax);
-    ``mux_bits``: bits chosen by those comparisons; ``rom_leaves``: per live table-word bit,
-    the distinct non-constant pieces of one LUT's inputs (4 on iCE40, 6 on Xilinx 7);
-    ``rom_selects``: the changes between consecutive pieces (the select tree those pieces
-    need); ``reg_bits``: flip-flop bits of the register banks (a registered table read
-    held in a block RAM has none) plus the valid pipeline; ``brams``: block RAMs of the
-    tables the rule puts there; ``products``: ``(a_bits, b_bits, y_bits)`` of each live
-    constant product written as ``*`` (products ``"multiply"``).
+    ``add_bits``: adder bits (sums from their first bit where both terms may be nonzero,
+    negated power-of-two products, rounding increments); ``cmp_bits``: comparator bits
+    (saturation, clamps, threshold, argmax; one per compared bit); ``mux_bits``: bits
+    chosen by those comparisons; ``rom_leaves``: per live word bit of a table in logic,
+    the distinct non-constant pieces of the reachable words on one LUT's address
+    inputs (4 on iCE40, 6 on Xilinx 7); ``rom_selects``: changes between consecutive
+    pieces (the select tree); ``reg_bits``: register nets (a registered table read in a
+    block RAM has none) plus the valid pipeline; ``brams``: block RAMs; ``products``:
+    ``(a_bits, b_bits, y_bits)`` of each live product written as ``*``.
     """
 
     add_bits: int
@@ -86,15 +92,207 @@ class Structure:
                 float(self.rom_selects))  # fmt: skip
 
 
-LUT_FEATURES = ("add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects")
-__all__ += ["LUT_FEATURES"]
+def dsp48_count(a_bits: int, b_bits: int, y_bits: int) -> int:
+    """DSP48E1 blocks that Yosys 0.23 ``synth_xilinx`` gives one signed product (its ``mul2dsp`` rule).
+
+    ``synth_xilinx`` runs ``mul2dsp`` with ``DSP_A_MAXWIDTH=25 DSP_B_MAXWIDTH=18
+    DSP_A_MINWIDTH=2 DSP_B_MINWIDTH=2 DSP_Y_MINWIDTH=9 DSP_SIGNEDONLY=1`` (Yosys's
+    ``techlibs/xilinx/synth_xilinx.cc``; from memory): a narrower product stays in
+    LUTs, a wider one is split into 25 x 18 pieces (the wider operand on the 25-bit port).
+    """
+    a, b = max(a_bits, b_bits), min(a_bits, b_bits)
+    if a < 2 or b < 2 or y_bits < 9:
+        return 0
+    return math.ceil(max(a - 1, 1) / 24) * math.ceil(max(b - 1, 1) / 17)
 
 
-def _blocks(entries: int, width: int, shapes: tuple[tuple[int, int], ...]) -> int:
-    return min(math.ceil(entries / d) * math.ceil(width / w) for d, w in shapes)
+class _Nets:
+    """Interned nets: 0 and 1 are the constants; ``kind[id]``, ``deps[id]`` describe the others."""
+
+    def __init__(self) -> None:
+        self.ids: dict[Any, int] = {}
+        self.kind: list[Any] = [None, None]
+        self.deps: list[tuple[int, ...]] = [(), ()]
+
+    def new(self, key: Any, kind: Any, deps: tuple[int, ...]) -> int:
+        got = self.ids.get(key)
+        if got is None:
+            got = self.ids[key] = len(self.kind)
+            self.kind.append(kind)
+            self.deps.append(tuple(d for d in deps if d > 1))
+        return got
+
+    def inv(self, n: int) -> int:
+        if n < 2:
+            return 1 - n
+        if self.kind[n] == "not":
+            return self.deps[n][0]
+        return self.new(("not", n), "not", (n,))
 
 
-def _table_bits(r: Resolved, layer: int) -> np.ndarray:
+def _const_bits(v: int, n: int) -> list[int]:
+    v = wrap_to(v, n) % (1 << n) if n > 0 else 0
+    return [(v >> b) & 1 for b in range(n)]
+
+
+class _Walk:
+    def __init__(self, r: Resolved) -> None:
+        self.r, self.nets = r, _Nets()
+        self.bits: dict[int, list[int]] = {}
+        self.cell: dict[int, tuple[Any, ...]] = {}  # signal id -> (op, first new net, ...) for counting
+
+    def of(self, x: Sig, n: int) -> list[int]:
+        """The nets of ``x`` as ``n`` bits (sign- or zero-extended, or its low bits)."""
+        t = self.r.target(x)
+        if t.op == "const":
+            return _const_bits(int(t.args[0]), n)
+        b = self.bits[id(t)]
+        ext = b[-1] if t.signed else 0
+        return (b + [ext] * max(0, n - len(b)))[:n]
+
+    def round_up(self, src: list[int], ke: int, mode: str) -> int:
+        """The net of the rounding increment (the writer's ``up``), folded where it is plain."""
+        N, w = self.nets, len(src)
+
+        def bit(i: int) -> int:
+            return src[min(i, w - 1)]
+
+        rest = [src[i] for i in range(min(ke - 2, w - 1) + 1)] if ke >= 2 else []
+        rest = sorted({v for v in rest if v != 0})
+        h = bit(ke - 1)
+        if mode == "half-up" or h == 0:
+            return h
+        if mode == "half-even":
+            other = bit(ke)
+            if other == h or 1 in rest or h in rest:
+                return h  # h & (... | h) is h
+            if not rest:
+                return h if other == 1 else (0 if other == 0 else N.new(("and", h, other), "mux", (h, other)))
+            return N.new(("up", mode, h, tuple(rest), other), "mux", (h, other, *rest))
+        return N.new(("up", mode, tuple(src), ke), "mux", tuple(src))
+
+    def comb(self, s: Sig) -> list[int]:  # noqa: C901 - one case per operation
+        op, a, n, N = s.op, s.args, s.width, self.nets
+        if op == "port":
+            return [N.new(("in", a[0], b), "in", ()) for b in range(n)]
+        if op in ("pass", "wrap"):
+            return self.of(a[0], n)
+        if op == "mul":
+            c, src = int(a[1]), self.of(a[0], n)
+            sh = (abs(c) & -abs(c)).bit_length() - 1
+            if c > 0 and c == 1 << sh:
+                return ([0] * sh + src)[:n]
+            key = ("mul", c, tuple(src))
+            tz = next((i for i, v in enumerate(src) if v != 0), n) + sh
+            return [0 if b < tz else N.new(key + (b,), ("mul", c), tuple(src[: b + 1])) for b in range(n)]
+        if op == "add":
+            x, y = sorted((tuple(self.of(a[0], n)), tuple(self.of(a[1], n))))
+            out, b = [], 0
+            while b < n and (x[b] == 0 or y[b] == 0):  # no carry yet: the other term's bit
+                out.append(y[b] if x[b] == 0 else x[b])
+                b += 1
+            key = ("add", x, y)
+            out += [N.new(key + (i,), "add", x[: i + 1] + y[: i + 1]) for i in range(b, n)]
+            return out
+        if op == "round":
+            src = self.of(a[0], a[0].width)
+            w = len(src)
+            ke, q_msb, q_lsb = round_bits(w, a[1], n)
+            q = src[q_lsb : q_msb + 1]
+            q = (q + [src[-1]] * n)[:n]
+            if a[2] == "floor":
+                return q
+            up = self.round_up(src, ke, a[2])
+            if up == 0:
+                return q
+            if n == 1 and up == q[0]:  # q + q in one bit: 0, found by ABC (after the register pass): a
+                return [N.new(("opaque", tuple(q)), "opaque", ())]  # kept register of no inputs
+            key = ("round", tuple(q), up)
+            return [N.new(key + (b,), "add", tuple(q[: b + 1]) + (up,)) for b in range(n)]
+        if op in ("sat", "clamp"):
+            src_sig = self.r.target(a[0])
+            src = self.of(a[0], a[0].width)
+            if op == "sat":
+                hi = (1 << (a[1] - 1)) - 1
+                lo, m, offset = -hi - 1, 0, 0
+            else:
+                m, ilo, ihi, offset = a[1], a[2], a[3], a[4]
+                lo, hi = -((-ilo) >> m), ihi >> m
+            compares = (src_sig.lo < lo) + (src_sig.hi > hi)
+            v = ([0] * m + self.of(a[0], max(n - m, 0)))[:n]
+            if offset:
+                v[-1] = N.inv(v[-1])
+            if not compares:
+                return v
+            key = (op, a[1:], tuple(src))
+            self.cell[id(s)] = ("cmp", compares * len(src), key)
+            return [N.new(key + (b,), "mux", tuple(src) + (v[b],)) for b in range(n)]
+        if op == "ge":
+            src = tuple(self.of(a[0], a[0].width))
+            key = ("ge", a[1], src)
+            self.cell[id(s)] = ("cmp", len(src) + 1, key)
+            return [N.new(key, "mux", src)]
+        if op in ("maxcode", "maxidx"):
+            ca, cb = (a[0], a[1]) if op == "maxcode" else (a[0], a[2])
+            pa, pb = tuple(self.of(ca, ca.width)), tuple(self.of(cb, cb.width))
+            sel = (a[0], a[1]) if op == "maxcode" else (a[1], a[3])
+            va, vb = self.of(sel[0], n), self.of(sel[1], n)
+            ckey = ("gt", pa, pb)
+            self.cell[id(s)] = ("cmp", max(len(pa), len(pb)) + 1, ckey)
+            return [va[b] if va[b] == vb[b] else N.new((op, ckey, va[b], vb[b]), "mux", pa + pb + (va[b], vb[b]))
+                    for b in range(n)]  # fmt: skip
+        if op == "rom":
+            addr = tuple(self.of(a[0], a[0].width))
+            self.cell[id(s)] = ("rom", addr)
+            return [N.new(("rom", a[1], addr, b), "rom", addr) for b in range(n)]
+        raise AssertionError(op)
+
+
+def _reachable(addr: tuple[int, ...], nets: _Nets, full: bool) -> np.ndarray:
+    """The addresses the address nets can take: ``full``: knowing that a net and its inverse differ."""
+    T = len(addr)
+    a = np.arange(1 << T, dtype=np.int64)
+    bits = (a[:, None] >> np.arange(T)[None, :]) & 1
+    ok = np.ones(a.size, dtype=bool)
+    first: dict[int, int] = {}
+    for i, n in enumerate(addr):
+        if n < 2:
+            ok &= bits[:, i] == n
+            continue
+        base, flip = n, 0
+        if full and nets.kind[n] == "not":
+            base, flip = nets.deps[n][0], 1
+        if base in first:
+            ok &= bits[:, i] == (bits[:, first[base][0]] ^ flip ^ first[base][1])  # type: ignore[index]
+        else:
+            first[base] = (i, flip)  # type: ignore[assignment]
+    return a[ok]
+
+
+def _bram(entries: int, width: int, shapes: tuple[tuple[int, int], ...], reach: np.ndarray) -> tuple[int, int]:
+    """``(blocks, blocks kept)`` of a ROM of ``entries`` words of ``width`` bits in block RAM.
+
+    As ``memory_libmap`` lays a ROM out (seen in Yosys 0.23 netlists: block names and the
+    blocks removed): for a block of ``d x w``, ``entries / d`` words side by side form one
+    row of a ``d``-deep memory (the top address bits choose the word), cut into blocks of
+    ``w`` bits; the fewest blocks win (ties: the deeper block). A block that holds no bit
+    of a word the address can reach is removed.
+    """
+    best = None
+    for d, w in shapes:
+        per_row = max(1, entries // d)
+        n = math.ceil(per_row * width / w)
+        if best is None or (n, -d) < (best[0], -best[1]):
+            best = (n, d, w)
+    assert best is not None
+    n, d, w = best
+    kept: set[int] = set()
+    for q in set((reach // d).tolist()) if entries > d else {0}:
+        kept.update(range(q * width // w, (q * width + width - 1) // w + 1))
+    return n, len(kept)
+
+
+def _table(r: Resolved, layer: int) -> np.ndarray:
     """The table of ``layer`` as a (words x bits) 0/1 array (two's complement words)."""
     L = r.design.layers[layer - 1]
     assert L.table is not None
@@ -102,147 +300,85 @@ def _table_bits(r: Resolved, layer: int) -> np.ndarray:
     return ((words[:, None] >> np.arange(L.out_bits)[None, :]) & 1).astype(np.int8)
 
 
-def _zeros(s: Sig, tz: dict[int, int], r: Resolved) -> int:
-    """Low bits of ``s`` that are zero by structure."""
-    op, a = s.op, s.args
-    if op == "const":
-        v = int(a[0])
-        return s.width if v == 0 else min((v & -v).bit_length() - 1, s.width)
-    src = [r.target(x) for x in a if isinstance(x, Sig)]
-    if op == "pass":
-        return tz.get(id(src[0]), 0)
-    if op == "mul":
-        c = abs(int(a[1]))
-        return min(tz.get(id(src[0]), 0) + (c & -c).bit_length() - 1, s.width)
-    if op == "add":
-        return min(tz.get(id(src[0]), 0), tz.get(id(src[1]), 0))
-    if op == "wrap":
-        return min(tz.get(id(src[0]), 0), s.width)
-    return 0
-
-
-def dsp48_count(a_bits: int, b_bits: int, y_bits: int) -> int:
-    """DSP48E1 blocks Yosys 0.23 ``synth_xilinx`` gives one signed product (its ``mul2dsp`` rule).
-
-    ``mul2dsp`` is run with ``DSP_A_MAXWIDTH=25 DSP_B_MAXWIDTH=18 DSP_A_MINWIDTH=2
-    DSP_B_MINWIDTH=2 DSP_Y_MINWIDTH=9 DSP_SIGNEDONLY=1`` (``synth_xilinx`` help, Yosys
-    0.23): a product narrower than that stays in LUTs, a wider one is split into
-    25 x 18 pieces (the wider operand on the 25-bit port).
-    """
-    a, b = max(a_bits, b_bits), min(a_bits, b_bits)
-    if a < 2 or b < 2 or y_bits < 9:
-        return 0
-    return math.ceil(a / 25) * math.ceil(b / 18)
-
-
-def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - one case per operation
+def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counting walk
     """The :class:`Structure` of the datapath ``r`` on ``target`` (an iCE40 target or ``xilinx-7``)."""
-    fam = _family(target)
+    fam = family(target)
     block_cost, shapes = ROM_RULES[fam]
+    logic_cost = LOGIC_COST_ROM[fam]
     k = _LUT_INPUTS[fam]
+    W = _Walk(r)
+    N = W.nets
     sigs = [s for lev in r.levels for s in lev.sigs if r.declared(s) and s.op != "const"]
-    # structural zeros, forwards
-    tz: dict[int, int] = {}
-    tables: dict[int, np.ndarray] = {}
-    const_bits: dict[int, set[int]] = {}
+    roms: dict[int, tuple[Sig, np.ndarray, np.ndarray]] = {}
     for s in sigs:
-        tz[id(s)] = _zeros(s, tz, r)
-        if s.op == "rom":
-            layer = int(s.args[1])
-            if layer not in tables:
-                tables[layer] = _table_bits(r, layer)
-            t = tables[layer]
-            const_bits[id(s)] = {b for b in range(t.shape[1]) if t[:, b].min() == t[:, b].max()}
-        else:
-            const_bits[id(s)] = set(range(min(tz[id(s)], s.width)))
-    # liveness, backwards: the bits something live reads, less the constant ones
-    for s in sigs:
-        s.used = set()
-    for c in [*r.codes, r.decision]:
-        t = r.target(c)
-        if t.op != "const":
-            t.use(t.width - 1)
-    live: dict[int, set[int]] = {}
-    for s in reversed(sigs):
-        bits = s.used - const_bits[id(s)]
-        if not bits:
+        comb = W.comb(s)
+        if s.op == "rom":  # word bits equal over every reachable word are constants
+            t = _table(r, int(s.args[1]))
+            reach = _reachable(W.cell[id(s)][1], N, True)
+            sub = t[reach]
+            comb = [int(sub[0, b]) if sub[:, b].min() == sub[:, b].max() else c for b, c in enumerate(comb)]
+            roms[id(s)] = (s, t, reach)
+        if r.registered(s):
+            comb = [c if c < 2 else N.new(("reg", c), "reg", (c,)) for c in comb]
+        W.bits[id(s)] = comb
+    # liveness over nets, from the output ports
+    live: set[int] = set()
+    todo = [n for c in [*r.codes, r.decision] for n in W.of(c, c.width) if n > 1]
+    while todo:
+        n = todo.pop()
+        if n in live:
             continue
-        live[id(s)] = bits
-        srcs = [r.target(a) for a in s.args if isinstance(a, Sig)]
-        srcs = [x for x in srcs if x.op != "const"]
-        top = max(bits)
-        if s.op in ("pass", "mul", "add"):
-            for x in srcs:
-                x.use(min(x.width - 1, top))
-        elif s.op == "wrap":
-            srcs[0].use(min(s.args[1] - 1, top))
-        elif s.op == "round" and srcs:
-            _round_use(srcs[0], s.args[1], s.args[2], s.width)
-        elif s.op in ("sat", "clamp") and srcs:
-            _clamp_use(s, srcs[0])
-        else:
-            for x in srcs:
-                x.use(x.width - 1)
+        live.add(n)
+        todo.extend(d for d in N.deps[n] if d not in live)
     add = cmp = mux = leaves = selects = regs = brams = 0
     products: list[tuple[int, int, int]] = []
-    compared: set[tuple[int, int]] = set()
+    bram_regs: set[int] = set()
+    counted: set[Any] = set()
     for s in sigs:
-        bits = live.get(id(s))
-        if not bits:
-            continue
-        top = max(bits) + 1
-        srcs = [r.target(a) for a in s.args if isinstance(a, Sig)]
-        registered = r.registered(s)
-        in_bram = False
-        if s.op == "add":
-            add += max(0, top - max(tz.get(id(x), 0) if x.op != "const" else _zeros(x, tz, r) for x in srcs))
-        elif s.op == "mul":
-            c = int(s.args[1])
-            if c < 0 and (-c) & (-c - 1) == 0:  # a negated power of two: a subtraction from zero
-                add += max(0, top - tz[id(s)])
-            elif c & (c - 1) != 0:  # a product written as *
-                x = srcs[0]
-                a_bits = min(x.width + (0 if x.signed else 1), top)
-                products.append((a_bits, min(abs(c).bit_length() + 1, top), top))
-        elif s.op == "round":
-            if s.args[2] != "floor":
-                add += top
-        elif s.op in ("sat", "clamp"):
-            src = srcs[0]
-            if s.op == "sat":
-                hi = (1 << (s.args[1] - 1)) - 1
-                lo = -hi - 1
-            else:
-                m, ilo, ihi = s.args[1], s.args[2], s.args[3]
-                lo, hi = -((-ilo) >> m), ihi >> m
-            n_cmp = (src.lo < lo) + (src.hi > hi)
-            cmp += n_cmp * src.width
-            mux += n_cmp * len(bits)
-        elif s.op == "ge":
-            cmp += srcs[0].width + 1
-        elif s.op in ("maxcode", "maxidx"):
-            a, b = (srcs[0], srcs[1]) if s.op == "maxcode" else (srcs[0], srcs[2])
-            if (id(a), id(b)) not in compared:
-                compared.add((id(a), id(b)))
-                cmp += max(a.width, b.width) + 1
-            mux += len(bits)
-        elif s.op == "rom":
-            t = tables[int(s.args[1])]
-            cols = sorted(bits)
+        bits = [n for n in W.bits[id(s)] if n in live]
+        comb_live = [n for n in bits if N.kind[n] != "reg"] if not r.registered(s) else \
+            [N.deps[n][0] for n in bits if N.kind[n] == "reg"]  # fmt: skip
+        info = W.cell.get(id(s))
+        if info and info[0] == "cmp" and comb_live and info[2] not in counted:
+            counted.add(info[2])
+            cmp += info[1]
+        if s.op == "rom" and comb_live:
+            _, t, reach = roms[id(s)]
+            cols = [b for b, n in enumerate(W.bits[id(s)]) if n in live]
             entries = t.shape[0]
-            blocks = _blocks(entries, len(cols), shapes)
-            in_bram = registered and entries * len(cols) * LOGIC_COST_ROM > block_cost * blocks
-            if in_bram:
-                brams += blocks
+            full, kept = _bram(entries, len(cols), shapes, _reachable(W.cell[id(s)][1], N, False))
+            if r.registered(s) and entries * len(cols) * logic_cost > block_cost * full:
+                brams += kept
+                bram_regs.update(bits)
             else:
-                piece = 1 << min(k, int(round(math.log2(entries))))
+                sub = t[reach]
+                piece = min(1 << k, sub.shape[0])
+                pad = (-sub.shape[0]) % piece
+                if pad:
+                    sub = np.vstack([sub, np.repeat(sub[-1:], pad, axis=0)])
                 for b in cols:
-                    chunks = t[:, b].reshape(-1, piece)
-                    rows = {tuple(ch) for ch in chunks.tolist() if min(ch) != max(ch)}
-                    leaves += len(rows)
+                    chunks = sub[:, b].reshape(-1, piece)
+                    leaves += len({tuple(ch) for ch in chunks.tolist() if min(ch) != max(ch)})
                     selects += int(np.any(chunks[1:] != chunks[:-1], axis=1).sum())
-        if registered and not in_bram:
-            regs += len(bits)
-    regs += len(r.cuts)  # the valid pipeline
+        for n in set(comb_live):
+            if n in counted:
+                continue
+            counted.add(n)
+            kind = N.kind[n]
+            if kind == "add":
+                add += 1
+            elif kind == "mux":
+                mux += 1
+            elif isinstance(kind, tuple) and kind[0] == "mul":
+                c = kind[1]
+                if c < 0 and (-c) & (-c - 1) == 0:
+                    add += 1
+                elif ("prod", id(s)) not in counted:
+                    counted.add(("prod", id(s)))
+                    src = r.target(s.args[0])
+                    top = max(b for b, m in enumerate(W.bits[id(s)]) if m in live) + 1
+                    products.append((min(src.width + (0 if src.signed else 1), top),
+                                     min(abs(c).bit_length() + 1, top), top))  # fmt: skip
+    regs = sum(1 for n in live if N.kind[n] == "reg" and n not in bram_regs) + len(r.cuts)
     return Structure(add, cmp, mux, leaves, selects, regs, brams, tuple(products))
 
