@@ -34,7 +34,7 @@ import numpy as np
 from ..datapath._graph import Sig, round_bits, wrap_to
 from ..datapath._resolve import Resolved
 
-__all__ = ["Structure", "structure", "ROM_RULES", "LOGIC_COST_ROM", "LUT_FEATURES", "dsp48_count", "family"]
+__all__ = ["Structure", "structure", "ROM_RULES", "LOGIC_COST_ROM", "LUT_FEATURES", "DSP_RULES", "dsp_count", "family"]
 
 #: soft-logic cost of one ROM bit that ``memory_libmap`` weighs against the block cost, per family:
 #: 1/16 on iCE40 (the pass's default; from memory) and 1/64 on Xilinx 7 (found on the calibration
@@ -50,7 +50,7 @@ ROM_RULES: dict[str, tuple[float, tuple[tuple[int, int], ...]]] = {
 }
 _LUT_INPUTS = {"ice40": 4, "xilinx-7": 6}
 #: the LUT features of :meth:`Structure.features`, in order
-LUT_FEATURES = ("add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects")
+LUT_FEATURES = ("add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects", "bram_mux_bits")
 
 
 def family(target: str) -> str:
@@ -72,7 +72,8 @@ class Structure:
     chosen by those comparisons; ``rom_leaves``: per live word bit of a table in logic,
     the distinct non-constant pieces of the reachable words on one LUT's address
     inputs (4 on iCE40, 6 on Xilinx 7); ``rom_selects``: changes between consecutive
-    pieces (the select tree); ``reg_bits``: register nets (a registered table read in a
+    pieces (the select tree); ``bram_mux_bits``: per word bit of a table in block RAM, the
+    reachable words of one block row less one (the output select); ``reg_bits``: register nets (a registered table read in a
     block RAM has none) plus the valid pipeline; ``brams``: block RAMs; ``products``:
     ``(a_bits, b_bits, y_bits)`` of each live product written as ``*``.
     """
@@ -82,6 +83,7 @@ class Structure:
     mux_bits: int
     rom_leaves: int
     rom_selects: int
+    bram_mux_bits: int
     reg_bits: int
     brams: int
     products: tuple[tuple[int, int, int], ...]
@@ -89,21 +91,31 @@ class Structure:
     def features(self) -> tuple[float, ...]:
         """The LUT features, in the order of :data:`LUT_FEATURES`."""
         return (float(self.add_bits), float(self.cmp_bits + self.mux_bits), float(self.rom_leaves),
-                float(self.rom_selects))  # fmt: skip
+                float(self.rom_selects), float(self.bram_mux_bits))  # fmt: skip
 
 
-def dsp48_count(a_bits: int, b_bits: int, y_bits: int) -> int:
-    """DSP48E1 blocks that Yosys 0.23 ``synth_xilinx`` gives one signed product (its ``mul2dsp`` rule).
+#: ``mul2dsp`` limits per family (A and B operand widths, least A, B and product widths) as Yosys 0.23
+#: runs it: iCE40 from ``synth_ice40``'s help (``DSP_A_MAXWIDTH=16 DSP_B_MAXWIDTH=16 DSP_A_MINWIDTH=2
+#: DSP_B_MINWIDTH=2 DSP_Y_MINWIDTH=11``); Xilinx 7 (25 x 18, ``DSP_A_MINWIDTH=2 DSP_B_MINWIDTH=2
+#: DSP_Y_MINWIDTH=9``; from memory of ``synth_xilinx.cc``, checked by the benchmark's DSP counts)
+DSP_RULES: dict[str, tuple[int, int, int, int, int]] = {"ice40": (16, 16, 2, 2, 11), "xilinx-7": (25, 18, 2, 2, 9)}
 
-    ``synth_xilinx`` runs ``mul2dsp`` with ``DSP_A_MAXWIDTH=25 DSP_B_MAXWIDTH=18
-    DSP_A_MINWIDTH=2 DSP_B_MINWIDTH=2 DSP_Y_MINWIDTH=9 DSP_SIGNEDONLY=1`` (Yosys's
-    ``techlibs/xilinx/synth_xilinx.cc``; from memory): a narrower product stays in
-    LUTs, a wider one is split into 25 x 18 pieces (the wider operand on the 25-bit port).
+
+def dsp_count(target: str, a_bits: int, b_bits: int, y_bits: int) -> int:
+    """DSP blocks Yosys gives one signed constant product of ``a_bits`` x ``b_bits`` into ``y_bits`` bits.
+
+    ``mul2dsp`` (:data:`DSP_RULES`): a product below the least widths stays in LUTs, a wider
+    one is split into pieces of the block's widths (the wider operand on the wider port).
+    iCE40 counts are 0 unless the target maps DSPs (``ice40-up5k``: ``synth_ice40 -dsp``).
     """
-    a, b = max(a_bits, b_bits), min(a_bits, b_bits)
-    if a < 2 or b < 2 or y_bits < 9:
+    fam = family(target)
+    if fam == "ice40" and target != "ice40-up5k":
         return 0
-    return math.ceil(max(a - 1, 1) / 24) * math.ceil(max(b - 1, 1) / 17)
+    amax, bmax, amin, bmin, ymin = DSP_RULES[fam]
+    a, b = max(a_bits, b_bits), min(a_bits, b_bits)
+    if a < amin or b < bmin or y_bits < ymin:
+        return 0
+    return -(-a // amax) * -(-b // bmax)
 
 
 class _Nets:
@@ -269,8 +281,8 @@ def _reachable(addr: tuple[int, ...], nets: _Nets, full: bool) -> np.ndarray:
     return a[ok]
 
 
-def _bram(entries: int, width: int, shapes: tuple[tuple[int, int], ...], reach: np.ndarray) -> tuple[int, int]:
-    """``(blocks, blocks kept)`` of a ROM of ``entries`` words of ``width`` bits in block RAM.
+def _bram(entries: int, width: int, shapes: tuple[tuple[int, int], ...], reach: np.ndarray) -> tuple[int, int, int]:
+    """``(blocks, blocks kept, reachable words per row)`` of a ROM of ``entries`` words of ``width`` bits in block RAM.
 
     As ``memory_libmap`` lays a ROM out (seen in Yosys 0.23 netlists: block names and the
     blocks removed): for a block of ``d x w``, ``entries / d`` words side by side form one
@@ -287,9 +299,10 @@ def _bram(entries: int, width: int, shapes: tuple[tuple[int, int], ...], reach: 
     assert best is not None
     n, d, w = best
     kept: set[int] = set()
-    for q in set((reach // d).tolist()) if entries > d else {0}:
+    words = set((reach // d).tolist()) if entries > d else {0}
+    for q in words:
         kept.update(range(q * width // w, (q * width + width - 1) // w + 1))
-    return n, len(kept)
+    return n, len(kept), len(words)
 
 
 def _table(r: Resolved, layer: int) -> np.ndarray:
@@ -330,7 +343,7 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             continue
         live.add(n)
         todo.extend(d for d in N.deps[n] if d not in live)
-    add = cmp = mux = leaves = selects = regs = brams = 0
+    add = cmp = mux = leaves = selects = regs = brams = bram_mux = 0
     products: list[tuple[int, int, int]] = []
     bram_regs: set[int] = set()
     counted: set[Any] = set()
@@ -346,9 +359,10 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             _, t, reach = roms[id(s)]
             cols = [b for b, n in enumerate(W.bits[id(s)]) if n in live]
             entries = t.shape[0]
-            full, kept = _bram(entries, len(cols), shapes, _reachable(W.cell[id(s)][1], N, False))
+            full, kept, words = _bram(entries, len(cols), shapes, _reachable(W.cell[id(s)][1], N, False))
             if r.registered(s) and entries * len(cols) * logic_cost > block_cost * full:
                 brams += kept
+                bram_mux += len(cols) * (words - 1)
                 bram_regs.update(bits)
             else:
                 sub = t[reach]
@@ -380,5 +394,5 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
                     products.append((min(src.width + (0 if src.signed else 1), top),
                                      min(abs(c).bit_length() + 1, top), top))  # fmt: skip
     regs = sum(1 for n in live if N.kind[n] == "reg" and n not in bram_regs) + len(r.cuts)
-    return Structure(add, cmp, mux, leaves, selects, regs, brams, tuple(products))
+    return Structure(add, cmp, mux, leaves, selects, bram_mux, regs, brams, tuple(products))
 
