@@ -50,7 +50,7 @@ ROM_RULES: dict[str, tuple[float, tuple[tuple[int, int], ...]]] = {
 }
 _LUT_INPUTS = {"ice40": 4, "xilinx-7": 6}
 #: the LUT features of :meth:`Structure.features`, in order
-LUT_FEATURES = ("add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects", "bram_mux_bits")
+LUT_FEATURES = ("add_bits", "const_add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects", "bram_mux_bits")
 
 
 def family(target: str) -> str:
@@ -66,8 +66,9 @@ def family(target: str) -> str:
 class Structure:
     """Live bit counts of one datapath on one target family (after folding and dead-logic removal).
 
-    ``add_bits``: adder bits (sums from their first bit where both terms may be nonzero,
-    negated power-of-two products, rounding increments); ``cmp_bits``: comparator bits
+    ``add_bits``: adder bits of two variable terms (from the first bit where both may be
+    nonzero); ``const_add_bits``: adder bits with a constant or one-bit term (a bias, a
+    negated power-of-two product ``0 - x``, a rounding increment ``q + up``); ``cmp_bits``: comparator bits
     (saturation, clamps, threshold, argmax; one per compared bit); ``mux_bits``: bits
     chosen by those comparisons; ``rom_leaves``: per live word bit of a table in logic,
     the distinct non-constant pieces of the reachable words on one LUT's address
@@ -79,6 +80,7 @@ class Structure:
     """
 
     add_bits: int
+    const_add_bits: int
     cmp_bits: int
     mux_bits: int
     rom_leaves: int
@@ -90,8 +92,8 @@ class Structure:
 
     def features(self) -> tuple[float, ...]:
         """The LUT features, in the order of :data:`LUT_FEATURES`."""
-        return (float(self.add_bits), float(self.cmp_bits + self.mux_bits), float(self.rom_leaves),
-                float(self.rom_selects), float(self.bram_mux_bits))  # fmt: skip
+        return (float(self.add_bits), float(self.const_add_bits), float(self.cmp_bits + self.mux_bits),
+                float(self.rom_leaves), float(self.rom_selects), float(self.bram_mux_bits))  # fmt: skip
 
 
 #: ``mul2dsp`` limits per family (A and B operand widths, least A, B and product widths) as Yosys 0.23
@@ -204,7 +206,8 @@ class _Walk:
                 out.append(y[b] if x[b] == 0 else x[b])
                 b += 1
             key = ("add", x, y)
-            out += [N.new(key + (i,), "add", x[: i + 1] + y[: i + 1]) for i in range(b, n)]
+            kind = "addc" if max(x) < 2 or max(y) < 2 else "add"  # a constant term
+            out += [N.new(key + (i,), kind, x[: i + 1] + y[: i + 1]) for i in range(b, n)]
             return out
         if op == "round":
             src = self.of(a[0], a[0].width)
@@ -220,7 +223,7 @@ class _Walk:
             if n == 1 and up == q[0]:  # q + q in one bit: 0, found by ABC (after the register pass): a
                 return [N.new(("opaque", tuple(q)), "opaque", ())]  # kept register of no inputs
             key = ("round", tuple(q), up)
-            return [N.new(key + (b,), "add", tuple(q[: b + 1]) + (up,)) for b in range(n)]
+            return [N.new(key + (b,), "addc", tuple(q[: b + 1]) + (up,)) for b in range(n)]
         if op in ("sat", "clamp"):
             src_sig = self.r.target(a[0])
             src = self.of(a[0], a[0].width)
@@ -256,7 +259,8 @@ class _Walk:
         if op == "rom":
             addr = tuple(self.of(a[0], a[0].width))
             self.cell[id(s)] = ("rom", addr)
-            return [N.new(("rom", a[1], addr, b), "rom", addr) for b in range(n)]
+            # one memory per neuron: Yosys does not merge memories, even equal ones on one address
+            return [N.new(("rom", s.name, b), "rom", addr) for b in range(n)]
         raise AssertionError(op)
 
 
@@ -343,7 +347,7 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             continue
         live.add(n)
         todo.extend(d for d in N.deps[n] if d not in live)
-    add = cmp = mux = leaves = selects = regs = brams = bram_mux = 0
+    add = addc = cmp = mux = leaves = selects = regs = brams = bram_mux = 0
     products: list[tuple[int, int, int]] = []
     bram_regs: set[int] = set()
     counted: set[Any] = set()
@@ -381,12 +385,14 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             kind = N.kind[n]
             if kind == "add":
                 add += 1
+            elif kind == "addc":
+                addc += 1
             elif kind == "mux":
                 mux += 1
             elif isinstance(kind, tuple) and kind[0] == "mul":
                 c = kind[1]
-                if c < 0 and (-c) & (-c - 1) == 0:
-                    add += 1
+                if c < 0 and (-c) & (-c - 1) == 0:  # 0 - x * 2^s
+                    addc += 1
                 elif ("prod", id(s)) not in counted:
                     counted.add(("prod", id(s)))
                     src = r.target(s.args[0])
@@ -394,5 +400,5 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
                     products.append((min(src.width + (0 if src.signed else 1), top),
                                      min(abs(c).bit_length() + 1, top), top))  # fmt: skip
     regs = sum(1 for n in live if N.kind[n] == "reg" and n not in bram_regs) + len(r.cuts)
-    return Structure(add, cmp, mux, leaves, selects, bram_mux, regs, brams, tuple(products))
+    return Structure(add, addc, cmp, mux, leaves, selects, bram_mux, regs, brams, tuple(products))
 
