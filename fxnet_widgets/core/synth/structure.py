@@ -73,9 +73,9 @@ class Structure:
     chosen by those comparisons; ``rom_leaves``: per live word bit of a table in logic,
     the distinct non-constant pieces of the reachable words on one LUT's address
     inputs (4 on iCE40, 6 on Xilinx 7); ``rom_selects``: changes between consecutive
-    pieces (the select tree); ``bram_mux_bits``: per word bit of a table in block RAM, the
-    reachable words of one block row less one (the output select); ``reg_bits``: register nets (a registered table read in a
-    block RAM has none) plus the valid pipeline; ``brams``: block RAMs; ``products``:
+    pieces (the select tree); ``bram_mux_bits``: LUTs selecting, per word bit of a table in
+    block RAM, one of the reachable words of a block row; ``reg_bits``: register nets (a
+    registered table read in a block RAM has none) plus the valid pipeline; ``brams``: block RAMs; ``products``:
     ``(a_bits, b_bits, y_bits)`` of each live product written as ``*``.
     """
 
@@ -309,6 +309,14 @@ def _bram(entries: int, width: int, shapes: tuple[tuple[int, int], ...], reach: 
     return n, len(kept), len(words)
 
 
+def _mux_luts(k: int, inputs: int) -> int:
+    """LUTs of one ``k``-to-1 multiplexer bit: LUT4s chain 2-to-1 steps (``k - 1``); a LUT6 is a
+    4-to-1 multiplexer and the MUXF7/MUXF8 cells join up to four of them (``ceil(k / 4)``)."""
+    if k <= 1:
+        return 0
+    return k - 1 if inputs == 4 else -(-k // 4)
+
+
 def _table(r: Resolved, layer: int) -> np.ndarray:
     """The table of ``layer`` as a (words x bits) 0/1 array (two's complement words)."""
     L = r.design.layers[layer - 1]
@@ -366,7 +374,7 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             full, kept, words = _bram(entries, len(cols), shapes, _reachable(W.cell[id(s)][1], N, False))
             if r.registered(s) and entries * len(cols) * logic_cost > block_cost * full:
                 brams += kept
-                bram_mux += len(cols) * (words - 1)
+                bram_mux += len(cols) * _mux_luts(words, k)
                 bram_regs.update(bits)
             else:
                 sub = t[reach]

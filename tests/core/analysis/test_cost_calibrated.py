@@ -110,7 +110,7 @@ def test_the_fit_recovers_a_linear_law_and_ignores_one_odd_design():
 def test_fit_from_measured_counts():
     plans = calibration_plans(NET, 6, seed=3)
     feats = [datapath_structure(NET, p, "xilinx-7") for p in plans]
-    coef = np.array([0.5, 0.4, 0.0, 0.9, 0.3])
+    coef = np.array([0.5, 0.2, 0.4, 0.0, 0.9, 0.3])
     rows = [(NET, p, {"luts": round(float(coef @ s.features())), "ffs": round(0.8 * s.reg_bits), "brams": s.brams})
             for p, s in zip(plans, feats)]  # fmt: skip
     cal = fit("xilinx-7", rows, {"yosys": "test"}, "6 plans, seed 3")
