@@ -40,14 +40,17 @@ __all__ = ["Structure", "structure", "ROM_RULES", "LOGIC_COST_ROM", "LUT_FEATURE
 #: 1/16 on iCE40 (the pass's default; from memory) and 1/64 on Xilinx 7 (found on the calibration
 #: set: ROMs of 7168 and 8192 bits stay in LUTs, 11264 bits take a RAMB18)
 LOGIC_COST_ROM = {"ice40": 1.0 / 16.0, "xilinx-7": 1.0 / 64.0}
-#: per target family: ``(cost of one block, (depth, width) shapes)``. iCE40: ``cost 64`` of
-#: ``$__ICE40_RAM4K_`` in Yosys's ``share/ice40/brams.txt`` (abits 11, widths 2 4 8 16).
-#: Xilinx 7: ``cost 129`` of the 18 kbit (``HALF``) block in ``share/xilinx/brams_xc4v.txt``,
-#: RAMB18E1 shapes 16384 x 1 .. 512 x 36 (7 Series Memory Resources, UG473; from memory).
-ROM_RULES: dict[str, tuple[float, tuple[tuple[int, int], ...]]] = {
-    "ice40": (64.0, ((2048, 2), (1024, 4), (512, 8), (256, 16))),
-    "xilinx-7": (129.0, ((16384, 1), (8192, 2), (4096, 4), (2048, 9), (1024, 18), (512, 36))),
-}
+#: per target family, the block kinds ``memory_libmap`` may use: ``(cost, blocks it counts as,
+#: (depth, width) shapes)``. iCE40: ``cost 64`` of ``$__ICE40_RAM4K_`` in Yosys's
+#: ``share/ice40/brams.txt`` (abits 11, widths 2 4 8 16). Xilinx 7: ``cost 129`` (18 kbit,
+#: ``HALF``: a RAMB18E1) and ``cost 257`` (36 kbit, ``FULL``: a RAMB36E1, counted as two RAMB18)
+#: in ``share/xilinx/brams_xc4v.txt``; shapes 16384 x 1 .. 512 x 36 and 32768 x 1 .. 1024 x 36
+#: (7 Series Memory Resources, UG473; from memory).
+ROM_RULES: dict[str, tuple[tuple[float, int, tuple[tuple[int, int], ...]], ...]] = {
+    "ice40": ((64.0, 1, ((2048, 2), (1024, 4), (512, 8), (256, 16))),),
+    "xilinx-7": ((129.0, 1, ((16384, 1), (8192, 2), (4096, 4), (2048, 9), (1024, 18), (512, 36))),
+                 (257.0, 2, ((32768, 1), (16384, 2), (8192, 4), (4096, 9), (2048, 18), (1024, 36)))),
+}  # fmt: skip
 _LUT_INPUTS = {"ice40": 4, "xilinx-7": 6}
 #: the LUT features of :meth:`Structure.features`, in order
 LUT_FEATURES = ("add_bits", "const_add_bits", "cmp_mux_bits", "rom_leaves", "rom_selects", "bram_mux_bits")
@@ -285,28 +288,30 @@ def _reachable(addr: tuple[int, ...], nets: _Nets, full: bool) -> np.ndarray:
     return a[ok]
 
 
-def _bram(entries: int, width: int, shapes: tuple[tuple[int, int], ...], reach: np.ndarray) -> tuple[int, int, int]:
-    """``(blocks, blocks kept, reachable words per row)`` of a ROM of ``entries`` words of ``width`` bits in block RAM.
+def _bram(entries: int, width: int, kinds: tuple[tuple[float, int, tuple[tuple[int, int], ...]], ...],
+          reach: np.ndarray) -> tuple[float, int, int]:  # fmt: skip
+    """``(cost, blocks kept, reachable words per row)`` of a ROM of ``entries`` x ``width`` bits in block RAM.
 
-    As ``memory_libmap`` lays a ROM out (seen in Yosys 0.23 netlists: block names and the
-    blocks removed): for a block of ``d x w``, ``entries / d`` words side by side form one
-    row of a ``d``-deep memory (the top address bits choose the word), cut into blocks of
-    ``w`` bits; the fewest blocks win (ties: the deeper block). A block that holds no bit
-    of a word the address can reach is removed.
+    As ``memory_libmap`` lays a ROM out (seen in Yosys 0.23 netlists: block names, shapes
+    and the blocks removed): for a block of ``d x w``, ``entries / d`` words side by side
+    form one row of a ``d``-deep memory (the top address bits choose the word), cut into
+    blocks of ``w`` bits; the cheapest layout wins (ties: the deeper block). A block that
+    holds no bit of a word the address can reach is removed. Blocks kept are counted in
+    the target's unit (a RAMB36 as two RAMB18).
     """
     best = None
-    for d, w in shapes:
-        per_row = max(1, entries // d)
-        n = math.ceil(per_row * width / w)
-        if best is None or (n, -d) < (best[0], -best[1]):
-            best = (n, d, w)
+    for cost, unit, shapes in kinds:
+        for d, w in shapes:
+            n = math.ceil(max(1, entries // d) * width / w)
+            if best is None or (cost * n, -d) < (best[0], -best[1]):
+                best = (cost * n, d, w, unit)
     assert best is not None
-    n, d, w = best
+    total, d, w, unit = best
     kept: set[int] = set()
     words = set((reach // d).tolist()) if entries > d else {0}
     for q in words:
         kept.update(range(q * width // w, (q * width + width - 1) // w + 1))
-    return n, len(kept), len(words)
+    return total, unit * len(kept), len(words)
 
 
 def _mux_luts(k: int, inputs: int) -> int:
@@ -328,7 +333,7 @@ def _table(r: Resolved, layer: int) -> np.ndarray:
 def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counting walk
     """The :class:`Structure` of the datapath ``r`` on ``target`` (an iCE40 target or ``xilinx-7``)."""
     fam = family(target)
-    block_cost, shapes = ROM_RULES[fam]
+    kinds = ROM_RULES[fam]
     logic_cost = LOGIC_COST_ROM[fam]
     k = _LUT_INPUTS[fam]
     W = _Walk(r)
@@ -371,8 +376,8 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             _, t, reach = roms[id(s)]
             cols = [b for b, n in enumerate(W.bits[id(s)]) if n in live]
             entries = t.shape[0]
-            full, kept, words = _bram(entries, len(cols), shapes, _reachable(W.cell[id(s)][1], N, False))
-            if r.registered(s) and entries * len(cols) * logic_cost > block_cost * full:
+            cost, kept, words = _bram(entries, len(cols), kinds, _reachable(W.cell[id(s)][1], N, False))
+            if r.registered(s) and entries * len(cols) * logic_cost > cost:
                 brams += kept
                 bram_mux += len(cols) * _mux_luts(words, k)
                 bram_regs.update(bits)

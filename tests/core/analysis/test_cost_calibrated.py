@@ -31,23 +31,26 @@ NET = Network.from_layers(
     [([[9.2, -12.4, -2.9], [8.9, -11.6, -3.2], [-9.4, 12.8, 2.8]], [-0.36, -0.36, 0.4], "sigmoid"),
      ([[6.1, 5.7, -6.3]], [-2.9], "sigmoid")], classes=["other", "ripe"],
 )  # fmt: skip
-ICE40, X7 = ROM_RULES["ice40"][1], ROM_RULES["xilinx-7"][1]
+ICE40, X7 = ROM_RULES["ice40"], ROM_RULES["xilinx-7"]
 
 
 def test_block_ram_layout_follows_the_netlists_yosys_writes():
     every = np.arange(16384)
     # Yosys 0.23 synth_xilinx, a 16384 x 12 ROM: 11 RAMB18E1 with READ_WIDTH_A 9 (2048 x 9 blocks,
     # eight 12-bit words side by side in a 96-bit row); 16384x1 blocks would take 12
-    assert _bram(16384, 12, X7, every)[:2] == (11, 11)
+    assert _bram(16384, 12, X7, every)[:2] == (11 * 129, 11)
     # ... a 16384 x 10 ROM whose address has bit 13 free and bits 12..10 one net (a sign bit and its
     # copies): blocks l1_n0_code_table.0.0 .. .0.8, of which .0.2 and .0.6 were removed (no word reached)
     reach = np.array([a for a in every if (a >> 10) & 7 in (0, 7)])
-    assert _bram(16384, 10, X7, reach)[:2] == (9, 7)
+    assert _bram(16384, 10, X7, reach)[:2] == (9 * 129, 7)
+    # ... a 16384 x 11 ROM: five RAMB36E1 of 4096 x 9 (cost 5 x 257 = 1285 < 10 RAMB18 at 1290), ten RAMB18
+    # counted; its address reaches every 4096-word slice, so none is removed
+    assert _bram(16384, 11, X7, np.array([a for a in every if (a >> 11) & 3 in (0, 3)]))[:2] == (5 * 257, 10)
     # Yosys 0.23 synth_ice40, a 16384 x 11 ROM: blocks numbered .0.0 .. .0.43 (44 SB_RAM40_4K, eight
     # 11-bit words in an 88-bit row of 2048 x 2 blocks), not 8 x 6 = 48
-    assert _bram(16384, 11, ICE40, every)[0] == 44
+    assert _bram(16384, 11, ICE40, every)[0] == 44 * 64
     # a 1024 x 12 ROM: three 1024 x 4 blocks (iCE40 TN1250 shapes; from memory)
-    assert _bram(1024, 12, ICE40, np.arange(1024))[:2] == (3, 3)
+    assert _bram(1024, 12, ICE40, np.arange(1024))[:2] == (3 * 64, 3)
 
 
 def test_dsp_rule_of_mul2dsp():
