@@ -135,8 +135,9 @@ def _read(path: Path) -> dict[str, Calibration]:
     for d in doc.get("calibrations", []):
         if d.get("lut_features") != list(LUT_FEATURES):
             continue  # fitted for other features: refit with the benchmark
-        out[d["target"]] = Calibration(d["target"], d["tools"], d["designs"], int(d["n_designs"]),
-                                       tuple(float(c) for c in d["luts"]), float(d["ffs_per_register_bit"]))  # fmt: skip
+        luts = tuple(float(c) for c in d["luts"])
+        out[d["target"]] = Calibration(d["target"], d["tools"], d["designs"], int(d["n_designs"]), luts,
+                                       float(d["ffs_per_register_bit"]))  # fmt: skip
     return out
 
 

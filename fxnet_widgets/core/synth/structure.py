@@ -199,7 +199,7 @@ class _Walk:
             sh = (abs(c) & -abs(c)).bit_length() - 1
             if c > 0 and c == 1 << sh:
                 return ([0] * sh + src)[:n]
-            key = ("mul", c, tuple(src))
+            key: tuple[Any, ...] = ("mul", c, tuple(src))
             tz = next((i for i, v in enumerate(src) if v != 0), n) + sh
             return [0 if b < tz else N.new(key + (b,), ("mul", c), tuple(src[: b + 1])) for b in range(n)]
         if op == "add":
@@ -246,10 +246,10 @@ class _Walk:
             self.cell[id(s)] = ("cmp", compares * len(src), key)
             return [N.new(key + (b,), "mux", tuple(src) + (v[b],)) for b in range(n)]
         if op == "ge":
-            src = tuple(self.of(a[0], a[0].width))
-            key = ("ge", a[1], src)
-            self.cell[id(s)] = ("cmp", len(src) + 1, key)
-            return [N.new(key, "mux", src)]
+            bits = tuple(self.of(a[0], a[0].width))
+            key = ("ge", a[1], bits)
+            self.cell[id(s)] = ("cmp", len(bits) + 1, key)
+            return [N.new(key, "mux", bits)]
         if op in ("maxcode", "maxidx"):
             ca, cb = (a[0], a[1]) if op == "maxcode" else (a[0], a[2])
             pa, pb = tuple(self.of(ca, ca.width)), tuple(self.of(cb, cb.width))
