@@ -85,10 +85,11 @@ def main() -> int:
             continue
         t0, c0 = time.perf_counter(), time.process_time()
         rows = measure(net, calibration_plans(net, args.plans, seed=10_000), target)
-        lut, ff, ram, dsp = [], [], 0, 0
+        lut, ff, ram, dsp, pairs = [], [], 0, 0, []
         for n, p, m in rows:
             e = cals[target].estimate(n, p)
             lut.append(rel(e["luts"], m["luts"]))
+            pairs.append((e["luts"], m["luts"]))
             ff.append(rel(e["ffs"], m["ffs"]))
             ram += e["brams"] == m["brams"]
             dsp += e["dsps"] == m["dsps"]
@@ -96,6 +97,11 @@ def main() -> int:
                      f"{100 * statistics.median(ff):>8.1f}% {100 * max(ff):>7.1f}% {ram:>5}/{len(rows)} "
                      f"{dsp:>5}/{len(rows)}   ({time.perf_counter() - t0:.0f} s wall, "
                      f"{time.process_time() - c0:.1f} s CPU here)")  # fmt: skip
+        worst = max(range(len(lut)), key=lut.__getitem__)
+        big = [x for x, (_, m) in zip(lut, pairs) if m >= 50]
+        lines.append(f"{'':<12} worst LUTs: estimated {pairs[worst][0]} vs {pairs[worst][1]} measured (plan "
+                     f"{worst + 1}); plans of >= 50 LUTs: {len(big)}, their worst "
+                     f"{100 * max(big, default=0):.1f}%")  # fmt: skip
         if target == "xilinx-7" and args.dsp_plans:
             rows = measure(net, calibration_plans(net, args.dsp_plans, seed=10_000), target, "multiply")
             exact = sum(cals[target].estimate(n, p, "multiply")["dsps"] == m["dsps"] for n, p, m in rows)
