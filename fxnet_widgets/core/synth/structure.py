@@ -147,6 +147,14 @@ class _Nets:
         return self.new(("not", n), "not", (n,))
 
 
+def _known(bits: tuple[int, ...] | list[int], signed: bool) -> int | None:
+    """The value of constant nets (None if any is not constant)."""
+    if any(b > 1 for b in bits):
+        return None
+    v = sum(b << i for i, b in enumerate(bits))
+    return v - (1 << len(bits)) if signed and bits and bits[-1] else v
+
+
 def _const_bits(v: int, n: int) -> list[int]:
     v = wrap_to(v, n) % (1 << n) if n > 0 else 0
     return [(v >> b) & 1 for b in range(n)]
@@ -247,6 +255,9 @@ class _Walk:
             return [N.new(key + (b,), "mux", tuple(src) + (v[b],)) for b in range(n)]
         if op == "ge":
             bits = tuple(self.of(a[0], a[0].width))
+            v = _known(bits, a[0].signed)
+            if v is not None:  # a constant compared: a constant
+                return [int(v >= a[1])]
             key = ("ge", a[1], bits)
             self.cell[id(s)] = ("cmp", len(bits) + 1, key)
             return [N.new(key, "mux", bits)]
@@ -255,6 +266,9 @@ class _Walk:
             pa, pb = tuple(self.of(ca, ca.width)), tuple(self.of(cb, cb.width))
             sel = (a[0], a[1]) if op == "maxcode" else (a[1], a[3])
             va, vb = self.of(sel[0], n), self.of(sel[1], n)
+            ka, kb = _known(pa, ca.signed), _known(pb, cb.signed)
+            if ka is not None and kb is not None:  # constants compared: the choice is known
+                return vb if kb > ka else va
             ckey = ("gt", pa, pb)
             self.cell[id(s)] = ("cmp", max(len(pa), len(pb)) + 1, ckey)
             return [va[b] if va[b] == vb[b] else N.new((op, ckey, va[b], vb[b]), "mux", pa + pb + (va[b], vb[b]))
