@@ -28,6 +28,8 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+import numpy as np  # noqa: E402
+
 import fxnet_widgets as fw  # noqa: E402
 from fxnet_widgets.core.synth import synthesize, tool_version  # noqa: E402
 from fxnet_widgets.core.synth.calibration import (  # noqa: E402
@@ -39,6 +41,19 @@ from fxnet_widgets.core.synth.calibration import (  # noqa: E402
 
 DESIGNS = ("reference datapath (shift-add, pipeline auto, 74.25 MHz) of the demo network (assets/network.json), "
            "plans from calibration_plans(seed 0)")  # fmt: skip
+
+
+def other_networks() -> dict[str, fw.Network]:
+    """Two networks unlike the demo (seeded normal weights): tanh then sigmoid with argmax, relu then identity."""
+    rng = np.random.default_rng(11)
+    return {
+        "3-4 tanh-2 sigmoid": fw.Network.from_layers([(rng.normal(0, 3, (4, 3)), rng.normal(0, 0.5, 4), "tanh"),
+                                                      (rng.normal(0, 3, (2, 4)), rng.normal(0, 0.5, 2), "sigmoid")],
+                                                     classes=["a", "b"]),
+        "3-5 relu-3 identity": fw.Network.from_layers([(rng.normal(0, 3, (5, 3)), rng.normal(0, 0.5, 5), "relu"),
+                                                       (rng.normal(0, 3, (3, 5)), rng.normal(0, 0.5, 3), "identity")],
+                                                      classes=["a", "b", "c"]),
+    }  # fmt: skip
 
 
 def measure(net, plans, target, products="shift-add"):
@@ -65,6 +80,8 @@ def main() -> int:
     ap.add_argument("--targets", default="ice40-up5k,xilinx-7")
     ap.add_argument("--plans", type=int, default=40, help="fresh plans per target")
     ap.add_argument("--dsp-plans", type=int, default=40, help="fresh plans with products '*' on xilinx-7")
+    ap.add_argument("--others", type=int, default=0, metavar="N",
+                    help="also N fresh plans of each of two other (seeded random) networks per target")
     ap.add_argument("--fit", type=int, default=0, metavar="N", help="fit on N plans first and save")
     args = ap.parse_args()
     net = fw.Network.load(ROOT / "assets" / "network.json")
@@ -108,6 +125,12 @@ def main() -> int:
             total = sum(m["dsps"] for _, _, m in rows)
             lines.append(f"{'  products *':<12} {len(rows):>5}  DSP48 exact {exact}/{len(rows)} "
                          f"({total} DSP48 in all)")  # fmt: skip
+        for name, other in other_networks().items() if args.others else ():
+            rows = measure(other, calibration_plans(other, args.others, seed=7), target)
+            errs = [rel(cals[target].estimate(n, p)["luts"], m["luts"]) for n, p, m in rows]
+            exact = sum(cals[target].estimate(n, p)["brams"] == m["brams"] for n, p, m in rows)
+            lines.append(f"{'  ' + name:<12} {len(rows):>3} LUT median {100 * statistics.median(errs):.1f}%, worst "
+                         f"{100 * max(errs):.1f}%; RAM exact {exact}/{len(rows)}")  # fmt: skip
     print(f"\n{clocks()}")
     print(f"{'target':<12} {'plans':>5} {'LUT median':>10} {'LUT worst':>9} {'FF median':>9} {'FF worst':>8} "
           f"{'RAM exact':>9} {'DSP exact':>9}")  # fmt: skip
