@@ -12,11 +12,12 @@ sum whose consumers keep its low bits only is that narrow, and a table word bit 
 is the same in every word the address can reach is a constant.
 
 Each table ROM is a block RAM or logic by the rule of Yosys's ``memory_libmap``: a
-block RAM when its read is registered and its blocks cost less than its bits at the
-soft-logic cost of a ROM bit (:data:`LOGIC_COST_ROM`, block costs in
-:data:`ROM_RULES`). Of a block RAM, the blocks whose depth slice no address reaches
-are removed; Yosys tells the slices apart by the address nets (the copies of a sign
-bit are one net, its inverse another).
+block RAM when its read is registered and the cheapest block layout (:func:`_bram`,
+block kinds and costs in :data:`ROM_RULES`) costs less than its bits at the soft-logic
+cost of a ROM bit (:data:`LOGIC_COST_ROM`). Of a block RAM, the blocks that hold no bit
+of a word the address can reach are removed; Yosys tells the words apart by the address
+nets (the copies of a sign bit are one net; a register of its inverse is another). The
+output select of the words of a block row costs LUTs of the family's multiplexer.
 
 Yosys sees structure, not value intervals, so a signal that only the intervals prove
 constant still costs logic here, as it does after synthesis. :class:`Structure` lists
