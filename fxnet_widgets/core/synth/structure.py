@@ -213,6 +213,9 @@ class _Walk:
             return [0 if b < tz else N.new(key + (b,), ("mul", c), tuple(src[: b + 1])) for b in range(n)]
         if op == "add":
             x, y = sorted((tuple(self.of(a[0], n)), tuple(self.of(a[1], n))))
+            kx, ky = _known(x, True), _known(y, True)
+            if kx is not None and ky is not None:  # constants added: a constant
+                return _const_bits(kx + ky, n)
             out, b = [], 0
             while b < n and (x[b] == 0 or y[b] == 0):  # no carry yet: the other term's bit
                 out.append(y[b] if x[b] == 0 else x[b])
@@ -232,6 +235,9 @@ class _Walk:
             up = self.round_up(src, ke, a[2])
             if up == 0:
                 return q
+            kq = _known(q, True)
+            if kq is not None and up == 1:
+                return _const_bits(kq + 1, n)
             if n == 1 and up == q[0]:  # q + q in one bit: 0, found by ABC (after the register pass): a
                 return [N.new(("opaque", tuple(q)), "opaque", ())]  # kept register of no inputs
             key = ("round", tuple(q), up)
@@ -239,6 +245,11 @@ class _Walk:
         if op in ("sat", "clamp"):
             src_sig = self.r.target(a[0])
             src = self.of(a[0], a[0].width)
+            k = _known(src, src_sig.signed)
+            if k is not None:  # a constant clamped: a constant
+                if op == "sat":
+                    return _const_bits(min(max(k, -(1 << (a[1] - 1))), (1 << (a[1] - 1)) - 1), n)
+                return _const_bits(min(max(k << a[1], a[2]), a[3]) - a[4], n)
             if op == "sat":
                 hi = (1 << (a[1] - 1)) - 1
                 lo, m, offset = -hi - 1, 0, 0
@@ -256,9 +267,9 @@ class _Walk:
             return [N.new(key + (b,), "mux", tuple(src) + (v[b],)) for b in range(n)]
         if op == "ge":
             bits = tuple(self.of(a[0], a[0].width))
-            v = _known(bits, a[0].signed)
-            if v is not None:  # a constant compared: a constant
-                return [int(v >= a[1])]
+            kv = _known(bits, a[0].signed)
+            if kv is not None:  # a constant compared: a constant
+                return [int(kv >= a[1])]
             key = ("ge", a[1], bits)
             self.cell[id(s)] = ("cmp", len(bits) + 1, key)
             return [N.new(key, "mux", bits)]
