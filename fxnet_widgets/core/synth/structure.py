@@ -74,9 +74,10 @@ class Structure:
     nonzero); ``const_add_bits``: adder bits with a constant or one-bit term (a bias, a
     negated power-of-two product ``0 - x``, a rounding increment ``q + up``); ``cmp_bits``: comparator bits
     (saturation, clamps, threshold, argmax; one per compared bit); ``mux_bits``: bits
-    chosen by those comparisons; ``rom_leaves``: per live word bit of a table in logic,
-    the distinct non-constant pieces of the reachable words on one LUT's address
-    inputs (4 on iCE40, 6 on Xilinx 7); ``rom_selects``: changes between consecutive
+    chosen by those comparisons; ``rom_leaves``: per table in logic, the distinct
+    pieces of its live word bits over the reachable words on one LUT's address inputs
+    (4 on iCE40, 6 on Xilinx 7; a constant piece or an address bit is free, and on Xilinx 7,
+    whose inverters are INV cells, so is a complement); ``rom_selects``: changes between consecutive
     pieces (the select tree); ``bram_mux_bits``: LUTs selecting, per word bit of a table in
     block RAM, one of the reachable words of a block row; ``reg_bits``: register nets (a
     registered table read in a block RAM has none) plus the valid pipeline; ``brams``: block RAMs; ``products``:
@@ -361,6 +362,7 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
     fam = family(target)
     kinds = ROM_RULES[fam]
     logic_cost = LOGIC_COST_ROM[fam]
+    free_inv = fam == "xilinx-7"
     k = _LUT_INPUTS[fam]
     W = _Walk(r)
     N = W.nets
@@ -413,10 +415,19 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
                 pad = (-sub.shape[0]) % piece
                 if pad:
                     sub = np.vstack([sub, np.repeat(sub[-1:], pad, axis=0)])
+                # equal pieces are one LUT, an address bit itself is none; on Xilinx 7 an inverter is a free
+                # INV cell, so a piece and its complement are one LUT and an inverted address bit none
+                trivial = {tuple(int(v) for v in (np.arange(piece) >> j) & 1) for j in range(piece.bit_length() - 1)
+                           } if len(reach) == t.shape[0] else set()  # (rows in address order: every word reached)
+                pieces: set[tuple[int, ...]] = set()
                 for b in cols:
                     chunks = sub[:, b].reshape(-1, piece)
-                    leaves += len({tuple(ch) for ch in chunks.tolist() if min(ch) != max(ch)})
+                    for ch in chunks.tolist():
+                        key = tuple(1 - v for v in ch) if free_inv and ch[0] == 1 else tuple(ch)
+                        if min(ch) != max(ch) and key not in trivial:
+                            pieces.add(key)
                     selects += int(np.any(chunks[1:] != chunks[:-1], axis=1).sum())
+                leaves += len(pieces)
         for n in set(comb_live):
             if n in counted:
                 continue
