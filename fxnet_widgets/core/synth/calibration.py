@@ -27,7 +27,8 @@ import numpy as np
 from ..fileio import atomic_write_json, load_json
 from ..network import Network
 from ..plan import LayerPlan, Plan
-from .structure import LUT_FEATURES, Structure, dsp_count, structure
+from .mapping import dsp_count
+from .structure import LUT_FEATURES, Structure, structure
 
 __all__ = ["Calibration", "LUT_FEATURES", "fit", "fit_relative", "calibration_plans", "calibrations", "estimate",
            "save_calibrations", "datapath_structure", "CALIBRATION_FILE"]  # fmt: skip

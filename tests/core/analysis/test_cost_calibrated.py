@@ -25,7 +25,7 @@ from fxnet_widgets.core.synth.calibration import (
     fit,
     fit_relative,
 )
-from fxnet_widgets.core.synth.structure import ROM_RULES, _bram, dsp_count
+from fxnet_widgets.core.synth.mapping import ROM_RULES, _bram, dsp_count
 
 NET = Network.from_layers(
     [([[9.2, -12.4, -2.9], [8.9, -11.6, -3.2], [-9.4, 12.8, 2.8]], [-0.36, -0.36, 0.4], "sigmoid"),
