@@ -193,7 +193,7 @@ class _Walk:
             if n == 1 and up == q[0]:  # q + q in one bit: 0, found by ABC (after the register pass): a
                 return [N.new(("opaque", tuple(q)), "opaque", ())]  # kept register of no inputs
             key = ("round", tuple(q), up)
-            return [N.new(key + (b,), "addc", tuple(q[: b + 1]) + (up,)) for b in range(n)]
+            return [N.new(key + (b,), "add" if b == 0 else "addc", tuple(q[: b + 1]) + (up,)) for b in range(n)]
         if op in ("sat", "clamp"):
             src_sig = self.r.target(a[0])
             src = self.of(a[0], a[0].width)
