@@ -18,7 +18,7 @@ Examples
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -85,6 +85,9 @@ class HardwareCost:
     block_bits: int
     pipeline_stages: int
     target: str = "ice40-up5k"  # the target of the calibrated estimates (CALIBRATED_KEYS)
+    #: ``(network, plan)`` the cost is of: the calibrated estimates count from their generated datapath
+    source: Any = field(default=None, repr=False, compare=False)
+    _estimate: Any = field(default=None, init=False, repr=False, compare=False)
 
     def _sum(self, key: str) -> int:
         return int(sum(getattr(L, key) for L in self.layers))
@@ -135,15 +138,20 @@ class HardwareCost:
         return out
 
     def estimated(self) -> dict[str, int]:
-        """LUTs, flip-flops and block RAMs of the reference datapath on :attr:`target`, from the
-        calibration fitted on synthesis runs (estimates for that device and tool version, not sign-off)."""
+        """LUTs, flip-flops, block RAMs and DSP blocks of the reference datapath on :attr:`target`, counted
+        from its generated structure with the coefficients fitted on synthesis runs (estimates for that
+        device and tool version, not sign-off; ``fxnet_widgets.core.synth.calibration``)."""
         from ..synth.calibration import calibrations  # lazily: only searches by a calibrated key need it
 
         cals = calibrations()
         if self.target not in cals:
             raise ValueError(f"target must be one of the calibrated targets ({', '.join(sorted(cals)) or 'none'}), "
                              f"not {self.target!r}")  # fmt: skip
-        return cals[self.target].estimate_cost(self)
+        if self.source is None:
+            raise ValueError("source must be the (network, plan) of the cost for a calibrated estimate, not None")
+        if self._estimate is None:
+            object.__setattr__(self, "_estimate", cals[self.target].estimate(*self.source))
+        return dict(self._estimate)
 
     def value(self, key: str) -> int:
         """One total by name (one of :data:`COST_KEYS`)."""
@@ -322,4 +330,4 @@ def hardware_cost(
         in_bits, in_signed = p.out_bits, L.out_signed
     if not isinstance(target, str):
         raise TypeError(f"target must be a target name, not {target!r}")
-    return HardwareCost(tuple(layers), multipliers, size, block_bits, stages, target)
+    return HardwareCost(tuple(layers), multipliers, size, block_bits, stages, target, (network, plan))
