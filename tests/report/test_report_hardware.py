@@ -82,7 +82,7 @@ def test_the_last_result_then_stale_after_a_plan_change(tmp_path, monkeypatch):
         ["LUTs", str(est["luts"]), str(r.luts), "5280", f"{100 * r.luts / 5280:.1f} %"],
         ["flip-flops", str(est["ffs"]), str(r.ffs), "5280", f"{100 * r.ffs / 5280:.1f} %"],
         ["block RAMs", str(est["brams"]), str(r.brams), "30", f"{100 * r.brams / 30:.1f} %"],
-        ["DSP blocks", "-", str(r.dsps), "8", f"{100 * r.dsps / 8:.1f} %"],
+        ["DSP blocks", str(est["dsps"]), str(r.dsps), "8", f"{100 * r.dsps / 8:.1f} %"],
     ]
     assert r.brams == 4 * math.ceil(2**10 * 8 / 4096)  # four tables of 8 kbit in 4 kbit blocks
     assert len(sec.select("table.hardware .fxnet-bar")) == 4
