@@ -21,7 +21,7 @@ import pytest
 ROOT = Path(__file__).resolve().parents[2]
 NOTEBOOKS = ROOT / "notebooks"
 EXPECTED = ["01-quick-start", "02-trade-offs", "03-your-own-data", "04-cheapest-plan", "05-hand-off",
-            "06-hardware-evidence", "07-footage", "08-your-own-network"]
+            "06-in-silicon", "07-footage", "08-your-own-network"]
 MARKERS = ("# NBVAL_IGNORE_OUTPUT", "# NBVAL_SKIP", "# NBVAL_CHECK_OUTPUT", "# NBVAL_RAISES_EXCEPTION")
 
 
