@@ -6,7 +6,7 @@ import json
 
 import numpy as np
 import pytest
-from widget_checks import assert_explorer_matches_kernel
+from widget_checks import assert_explorer_matches_kernel, refuse_out_bits_4
 
 from fxnet_widgets.core.kernel import build_integer_network, emulate
 from fxnet_widgets.core.plan import CHOICES
@@ -218,16 +218,7 @@ def test_failing_view_shows_in_status_line_and_others_keep_working(explorer):
 
 
 def test_core_error_shows_in_status_line_and_views_keep_last_good(explorer, monkeypatch):
-    import fxnet_widgets.widgets.parts as parts_module
-
-    real = parts_module.emulate
-
-    def refusing(net, plan, codes):
-        if plan.layers[0].out_bits == 4:
-            raise ValueError("layers[0]: refused for the test")
-        return real(net, plan, codes)
-
-    monkeypatch.setattr(parts_module, "emulate", refusing)
+    refuse_out_bits_4(monkeypatch)
     good = explorer.plan
     explorer.controls.sliders["out_bits"].value = 4
     assert explorer.session.error == "ValueError: layers[0]: refused for the test"

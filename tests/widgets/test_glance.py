@@ -12,6 +12,7 @@ import re
 
 import numpy as np
 import pytest
+from widget_checks import refuse_out_bits_4
 
 from fxnet_widgets.core.analysis import hardware_cost
 from fxnet_widgets.core.kernel import emulate
@@ -70,8 +71,6 @@ def test_glance_shows_the_kernels_figures(explorer, fruit_net, belt_image, label
 
 
 def test_glance_says_when_its_figures_are_of_another_plan(explorer, monkeypatch):
-    import fxnet_widgets.widgets.parts as parts_module
-
     s = explorer.session
     glance = MetricsGlancePanel(s)
     shown = s.result.plan
@@ -81,14 +80,7 @@ def test_glance_says_when_its_figures_are_of_another_plan(explorer, monkeypatch)
         assert glance.text.splitlines()[0] == glance.note and "fxnet-glance-stale" in glance.value
     assert glance.note == "" and "fxnet-glance-stale" not in glance.value  # computed: the banner goes
     # a plan the kernel refuses: the last good figures stay, marked as such
-    real = parts_module.emulate
-
-    def refusing(net, plan, codes):
-        if plan.layers[0].out_bits == 4:
-            raise ValueError("layers[0]: refused for the test")
-        return real(net, plan, codes)
-
-    monkeypatch.setattr(parts_module, "emulate", refusing)
+    refuse_out_bits_4(monkeypatch)
     good = s.result.plan
     explorer.controls.sliders["out_bits"].value = 4
     assert s.result.plan == good != s.plan

@@ -90,3 +90,17 @@ def assert_explorer_matches_kernel(ex, image_codes: np.ndarray | None = None) ->
     total = sum(m.n for m in emus)
     for hp in ex.histograms.plots:
         assert int(hp.neuron.counts.sum()) == total
+
+
+def refuse_out_bits_4(monkeypatch) -> None:
+    """Make the views' kernel refuse any plan whose layer 1 has 4 output bits (a one-line error)."""
+    import fxnet_widgets.widgets.parts as parts_module
+
+    real = parts_module.emulate
+
+    def refusing(net, plan, codes):
+        if plan.layers[0].out_bits == 4:
+            raise ValueError("layers[0]: refused for the test")
+        return real(net, plan, codes)
+
+    monkeypatch.setattr(parts_module, "emulate", refusing)
