@@ -51,6 +51,7 @@ def compare_section_html(comparison: Any) -> str:
 
     rows = [(label, _fmt(a), _fmt(b), _change(a, b)) for label, a, b in cmp.rows]
     table = table_html(["", "A", "B", "change"], rows, cls="compare", caption="plan A against plan B")
+    table += f'\n<p class="compare-note">{esc(cmp.estimate_note)}</p>'
     figs = []
     if comparison.image.value:
         figs.append(img_html(comparison.image.value, "image: A against B", "image: magenta only B says the target "

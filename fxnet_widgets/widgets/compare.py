@@ -19,6 +19,7 @@ import ipywidgets as w
 import numpy as np
 
 from ..core.analysis import COST_KEYS, HardwareCost, error_metrics, hardware_cost
+from ..core.analysis.cost import CALIBRATED_KEYS
 from ..core.kernel import EVENT_NAMES, emulate
 from ..core.plan import Plan
 from ..render.palette import slice_palette
@@ -62,6 +63,13 @@ class PlanComparison:
     @property
     def samples_differ(self) -> int | None:
         return None if self.samples_a is None else int(np.count_nonzero(self.samples_a != self.samples_b))
+
+    @property
+    def estimate_note(self) -> str:
+        """What the ``cost luts/ffs/brams`` rows are: calibrated estimates for a named device, nothing synthesized."""
+        return (f"cost {', '.join(CALIBRATED_KEYS)}: calibrated estimates for {self.cost_a.target} (no synthesis "
+                "run for these plans); open-tool figures are estimates for the named device and tool version, "
+                "not sign-off")  # fmt: skip
 
     def summary(self) -> str:
         """Deterministic text: each row as ``label: A -> B (change)``, then A against B."""
@@ -156,7 +164,8 @@ def _rows_html(cmp: PlanComparison) -> str:
         out.append(f"<tr><td style='padding-right:8px'>{html.escape(label)}</td><td style='{pad}'>{_fmt(a)}</td>"
                    f"<td style='{pad}'>{_fmt(b)}</td><td style='{pad};{style}'>{_change(a, b)}</td></tr>")  # fmt: skip
     return ("<table class='fxnet-compare-table' style='font-size:11px;border-collapse:collapse'><thead><tr><th></th>"
-            "<th>A</th><th>B</th><th>change</th></tr></thead><tbody>" + "".join(out) + "</tbody></table>")  # fmt: skip
+            "<th>A</th><th>B</th><th>change</th></tr></thead><tbody>" + "".join(out) + "</tbody></table>"
+            f"<div class='fxnet-compare-note' style='font-size:11px;color:#555'>{html.escape(cmp.estimate_note)}</div>")
 
 
 class ComparePanel(w.VBox):

@@ -91,3 +91,21 @@ def test_b_follows_the_sliders_and_pin(explorer):
 def test_bad_plan_is_refused(explorer):
     with pytest.raises(TypeError, match=r"^plan_b must be a Plan, not dict$"):
         explorer.compare({"layers": []})
+
+
+def test_calibrated_cost_rows_are_labelled_as_estimates_for_the_device(explorer, fruit_net, tmp_path):
+    # the luts/ffs/brams rows are calibrated estimates for hardware_cost's target, not synthesis runs:
+    # the table (widget and report) says so and names the device (project caution: open-tool figures
+    # are estimates for the named device and tool version, not sign-off)
+    b = explorer.plan.replace(layer=0, weight_bits=5, weight_frac=1)
+    cmp = explorer.compare(b)
+    target = hardware_cost(fruit_net, b).target
+    got = rows(cmp)
+    assert got["cost luts"][1] == hardware_cost(fruit_net, b).estimated()["luts"]
+    note = cmp.comparison.estimate_note
+    assert f"calibrated estimates for {target}" in note and "not sign-off" in note
+    assert note in cmp.table.value.replace("&#x27;", "'")
+    text = explorer.save_report(tmp_path / "r.html").read_text(encoding="utf-8")
+    section = text[text.index('<section id="compare">'):]
+    section = section[: section.index("</section>")]
+    assert f"cost luts, ffs, brams: calibrated estimates for {target}" in section
