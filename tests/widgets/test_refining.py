@@ -109,11 +109,13 @@ def test_after_a_swap_every_view_compares_with_the_original_float_network(explor
     fixed = np.asarray(emulate(refined, plan, im.codes).decisions)
     assert np.array_equal(im.fixed, fixed) and np.array_equal(im.float_, want_float)
     # preview's "where they differ" mask and its count
-    assert np.array_equal(im.fixed != im.float_, fixed != want_float) and im.mismatch == int((fixed != want_float).sum())
+    assert np.array_equal(im.fixed != im.float_, fixed != want_float)
+    assert im.mismatch == int(np.count_nonzero(fixed != want_float))
     assert f"; {im.mismatch} of {im.fixed.size} pixels differ" in ex.preview.note.value
     # metrics / glance disagreement counts and the float-versus-fixed agreement matrix
     for fig, codes in zip(r.figures, (im.codes, ex.session.samples)):
-        fl, fx = float64_decisions(fruit_net, codes).ravel(), np.asarray(emulate(refined, plan, codes).decisions).ravel()
+        fl = float64_decisions(fruit_net, codes).ravel()
+        fx = np.asarray(emulate(refined, plan, codes).decisions).ravel()
         assert fig.metrics.mismatch == int(np.count_nonzero(fl != fx))
         assert fig.agreement == tuple(tuple(int(np.count_nonzero((fl == i) & (fx == j))) for j in range(2))
                                       for i in range(2))  # fmt: skip
