@@ -69,6 +69,8 @@ class SessionData:
             if not isinstance(v, int) or isinstance(v, bool) or not lo <= v <= hi:
                 raise ValueError(f"{name} must be an integer between {lo} and {hi}, not {v!r}")
         self.network = network
+        #: the network whose float pass every view calls "float" (stays the original when another is swapped in)
+        self.reference = network
         n_codes = 1 << network.input_bits
         n_cls = len(network.classes)
         self.preview_width = preview_width

@@ -286,9 +286,8 @@ class RefinePanel(w.VBox):
         self.text = ("stale (computed for an earlier plan): " if self.stale else "") + text
         self.line.value = f"<span style='font-size:12px'>{head}{html.escape(text)}</span>"
         self.note.value = (
-            "<span style='font-size:12px'>the other views run the refined network: their 'float' is its own "
-            "float pass (weights exact under the plan); the line above compares with the original float "
-            "network</span>" if self.shown == "refined" else ""
+            "<span style='font-size:12px'>the other views show the refined network's integers; their 'float' "
+            "stays the original float network, as in the line above</span>" if self.shown == "refined" else ""
         )  # fmt: skip
 
     def _plan_text(self, plan: Plan) -> str:
@@ -322,8 +321,7 @@ class RefinePanel(w.VBox):
             colours = None if data.samples is None else np.zeros(data.samples.shape[0], np.int64)  # points unused
             got = slices_part(data, result.plan, (pos[0], pos[1], pos[2]), colours)
             self.outline, self._outline_key = tuple(sl.fixed for sl in got), key
-        shown = ("; the heat map: the refined network, against its own float pass" if self.shown == "refined"
-                 else "")  # fmt: skip
+        shown = "; the heat map: the refined network" if self.shown == "refined" else ""
         self.boundary.show_outline(self.outline, f"dots: where the fixed-point decision of {name} changes{shown}")
 
     def summary(self) -> str:

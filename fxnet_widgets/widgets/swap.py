@@ -5,7 +5,9 @@ layers, activations and classes as the one it came from; only its weights and
 biases differ (they are exact under one plan). :func:`use_network` checks that,
 points the session and its data at the new network, forgets every part computed
 with the old one and computes the newest state once (the same coalescing update
-as any other change). No widgets here.
+as any other change). The data's reference network (``session.data.reference``,
+the network the session was made with) stays: "float" in every view is still its
+float pass, while the integers come from the network swapped in. No widgets here.
 """
 
 from __future__ import annotations
@@ -33,7 +35,9 @@ def same_layout(a: Network, b: Network) -> str:
 
 
 def use_network(session: Any, network: Network) -> None:
-    """Make ``session`` compute with ``network`` (same layout as its network; the plan must fit it).
+    """Make ``session`` compute its integers with ``network`` (same layout; the plan must fit it).
+
+    The views keep comparing with the float pass of ``session.data.reference`` (the original network).
 
     Raises TypeError for a non-network, ValueError (one line) for a network of another layout
     or one the current plan does not fit; the session is unchanged then.

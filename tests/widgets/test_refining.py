@@ -78,8 +78,61 @@ def test_click_refine_swaps_in_the_refined_network(explorer, fruit_net):
                           "960 pixels (all of them refined on or held out)")
     assert html.escape(panel.text) in panel.line.value
     assert panel.summary().startswith("refine: showing refined\nrefine (rounding, against the float decisions):")
-    assert "their 'float' is its own float pass" in panel.note.value
+    assert "their 'float' stays the original float network" in panel.note.value
     assert ex.summary().endswith("\n" + panel.summary())  # the explorer's text says which network it shows
+
+
+def float64_decisions(net: Network, codes: np.ndarray) -> np.ndarray:
+    """The network's float forward pass worked here in float64 (semantics.md: inputs code / 2^bits,
+    x @ W.T + b per layer, the layer's activation, then argmax, or >= threshold for one output)."""
+    x = np.asarray(codes, np.float64).reshape(-1, net.n_in) / 2.0**net.input_bits
+    acts = {"sigmoid": lambda v: 1.0 / (1.0 + np.exp(-v)), "tanh": np.tanh, "relu": lambda v: np.maximum(v, 0.0),
+            "identity": lambda v: v}  # fmt: skip
+    for L in net.layers:
+        x = acts[L.activation](x @ np.asarray(L.weights, np.float64).T + np.asarray(L.bias, np.float64))
+    dec = (x[:, 0] >= net.threshold).astype(np.int64) if x.shape[1] == 1 else np.argmax(x, axis=1)
+    return dec.reshape(np.shape(codes)[:-1])
+
+
+def test_after_a_swap_every_view_compares_with_the_original_float_network(explorer, fruit_net):
+    ex, panel = explorer, explorer.refining
+    plain = shown(ex)
+    plain_figures = [(f.metrics.mismatch, f.agreement, f.ties) for f in ex.session.result.figures]
+    panel.run(wait=True)
+    refined, plan, r = panel.refinement.network, ex.plan, ex.session.result
+    assert panel.shown == "refined" and ex.session.network is refined and ex.session.data.reference is fruit_net
+    # outside reference: the original network's own float64 forward pass, worked here
+    im = r.image
+    want_float = float64_decisions(fruit_net, im.codes)
+    assert np.array_equal(np.asarray(emulate(fruit_net, plan, im.codes).float_decisions), want_float)  # sanity
+    assert not np.array_equal(want_float, float64_decisions(refined, im.codes))  # the two float passes differ
+    fixed = np.asarray(emulate(refined, plan, im.codes).decisions)
+    assert np.array_equal(im.fixed, fixed) and np.array_equal(im.float_, want_float)
+    # preview's "where they differ" mask and its count
+    assert np.array_equal(im.fixed != im.float_, fixed != want_float)
+    assert im.mismatch == int(np.count_nonzero(fixed != want_float))
+    assert f"; {im.mismatch} of {im.fixed.size} pixels differ" in ex.preview.note.value
+    # metrics / glance disagreement counts and the float-versus-fixed agreement matrix
+    for fig, codes in zip(r.figures, (im.codes, ex.session.samples)):
+        fl = float64_decisions(fruit_net, codes).ravel()
+        fx = np.asarray(emulate(refined, plan, codes).decisions).ravel()
+        assert fig.metrics.mismatch == int(np.count_nonzero(fl != fx))
+        assert fig.agreement == tuple(tuple(int(np.count_nonzero((fl == i) & (fx == j))) for j in range(2))
+                                      for i in range(2))  # fmt: skip
+    # the slices' float boundary is the original network's
+    c = ex.session.slice_codes
+    for sl in r.slices:
+        grid = slice_input(c, sl.x_input, sl.y_input, sl.fixed_input, sl.position)
+        assert np.array_equal(sl.float_, float64_decisions(fruit_net, grid))
+        assert np.array_equal(sl.fixed, emulate(refined, plan, grid).decisions)
+    cube = ex.session.data.cube_input
+    n = ex.session.data.cube_codes.size
+    assert np.array_equal(r.cube.float_, float64_decisions(fruit_net, cube).reshape(n, n, n))
+    assert_explorer_matches_kernel(ex)
+    # toggle back: exactly the plain result again, figures included
+    panel.use.value = "plain"
+    assert same(shown(ex), plain)
+    assert [(f.metrics.mismatch, f.agreement, f.ties) for f in ex.session.result.figures] == plain_figures
 
 
 def test_slices_carry_both_boundaries(explorer, fruit_net):

@@ -36,9 +36,14 @@ def slice_input(codes: np.ndarray, x_input: int, y_input: int, fixed_input: int,
 
 
 def assert_explorer_matches_kernel(ex, image_codes: np.ndarray | None = None) -> None:
-    """Every view of an explorer shows exactly what the kernel computes for ``ex.plan``."""
+    """Every view of an explorer shows exactly what the kernel computes for ``ex.plan``.
+
+    "Float" is the float pass of the session's reference network (the original one, also while a
+    refined network is swapped in); the fixed-point side is the session network's.
+    """
     s = ex.session
     net, plan = s.network, s.plan
+    ref = s.data.reference
     assert s.result.plan == plan
     n_cls = len(net.classes)
     emus = []
@@ -46,14 +51,15 @@ def assert_explorer_matches_kernel(ex, image_codes: np.ndarray | None = None) ->
         codes = s.result.image.codes if image_codes is None else image_codes
         emu = emulate(net, plan, codes)
         emus.append(emu)
+        fl = emulate(ref, plan, codes).float_decisions
         p = ex.preview
         assert np.array_equal(decode_classes(p.fixed_image.value, n_cls), emu.decisions)
-        assert np.array_equal(decode_classes(p.float_image.value, n_cls), emu.float_decisions)
+        assert np.array_equal(decode_classes(p.float_image.value, n_cls), fl)
         over = decode_rgb(p.overlay_image.value)
         magenta = (over == np.array(FIXED_ONLY, np.uint8)).all(axis=-1)
         teal = (over == np.array(FLOAT_ONLY, np.uint8)).all(axis=-1)
-        assert np.array_equal(magenta, (emu.decisions == 1) & (emu.float_decisions == 0))
-        assert np.array_equal(teal, (emu.decisions == 0) & (emu.float_decisions == 1))
+        assert np.array_equal(magenta, (emu.decisions == 1) & (fl == 0))
+        assert np.array_equal(teal, (emu.decisions == 0) & (fl == 1))
         assert np.array_equal(decode_rgb(p.input_image.value), codes)
     if s.samples is not None:
         emus.append(emulate(net, plan, s.samples))
@@ -61,8 +67,8 @@ def assert_explorer_matches_kernel(ex, image_codes: np.ndarray | None = None) ->
         xi, yi, fi = ((0, 1, 2), (0, 2, 1), (1, 2, 0))[sp.which]
         pos = s.slice_positions[fi]
         c = np.arange(0, 256, 2)
-        e = emulate(net, plan, slice_input(c, xi, yi, fi, pos))
-        fx, fl = e.decisions, e.float_decisions
+        grid = slice_input(c, xi, yi, fi, pos)
+        fx, fl = emulate(net, plan, grid).decisions, emulate(ref, plan, grid).float_decisions
         # comparison codes (render.comparison_codes): 0/1 agree, 2 only fixed says 1, 3 only float says 1
         want = np.where(fx == fl, fx, np.where(fx > fl, 2, 3))
         assert np.array_equal(sp.heatmap.color, want.astype(np.float32))
