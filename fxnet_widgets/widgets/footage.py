@@ -95,6 +95,8 @@ class FootagePanel(w.VBox):
         self.result: FootageAnalysis | None = None
         self._thread: threading.Thread | None = None
         self._cancel = threading.Event()
+        self._closed = False
+        self._network: Any = None  # the network the last timeline was started for
         self._lock = threading.Lock()
         n = len(self.frames)
         self.slider = w.IntSlider(0, 0, max(0, n - 1), description="frame", continuous_update=True,
@@ -144,22 +146,25 @@ class FootagePanel(w.VBox):
         self.follow.observe(lambda _: self._follow_changed(), "value")
         self._on_plan = lambda _: self.recompute()
         session.observe(self._on_plan, "plan")
+        # a network swap (the explorer's refine) redraws every view: recompute for the new network
+        session.add_view("footage", lambda _r: self.recompute() if self._other_network() else None)
         self._follow_changed()
         self.recompute()
 
     # -- computing (in the core, possibly in a thread) -----------------------------------
     def recompute(self) -> None:
         """Start the timeline for the explorer's current plan (the previous run is cancelled)."""
-        plan = self.session.plan
+        plan, self._network = self.session.plan, self.session.network
         with self._lock:
             self._cancel.set()
             self._cancel = cancel = threading.Event()
         self.progress.value = 0
         self._say()
         if not self.background:
-            self._run(plan, cancel)
+            self._run(plan, self._network, cancel)
             return
-        self._thread = threading.Thread(target=self._run, args=(plan, cancel), daemon=True, name="fxnet-footage")
+        self._thread = threading.Thread(target=self._run, args=(plan, self._network, cancel), daemon=True,
+                                        name="fxnet-footage")  # fmt: skip
         self._thread.start()
 
     def wait(self, timeout: float | None = None) -> bool:
@@ -170,9 +175,14 @@ class FootagePanel(w.VBox):
             return not th.is_alive()
         return True
 
-    def _run(self, plan: Plan, cancel: threading.Event) -> None:
+    def _other_network(self) -> bool:
+        """True when the last timeline was started for another network than the session's (not after close)."""
+        return not self._closed and self._network != self.session.network
+
+    def _run(self, plan: Plan, network: Any, cancel: threading.Event) -> None:
         try:
-            result = analyse_footage(self.session.network, plan, self.frames, cancel=cancel,
+            result = analyse_footage(network, plan, self.frames, cancel=cancel,
+                                     reference=self.session.data.reference,
                                      progress=lambda d, t: self._progress(d, cancel),
                                      source_info=self.info.to_dict())  # fmt: skip
         except Exception as exc:  # shown, never only logged
@@ -193,8 +203,9 @@ class FootagePanel(w.VBox):
     # -- drawing ---------------------------------------------------------------------
     @property
     def stale(self) -> bool:
-        """True when the timeline on screen is for another plan than the explorer's."""
-        return self.result is None or self.result.plan != self.session.plan
+        """True when the timeline on screen is for another plan (or network, after refine) than the explorer's."""
+        r = self.result
+        return r is None or r.plan != self.session.plan or r.network != self.session.network
 
     def _say(self) -> None:
         if self.result is None:
@@ -300,6 +311,7 @@ class FootagePanel(w.VBox):
     def close(self) -> None:
         """Stop the background run, stop following the plan, give the explorer its image back, close."""
         if hasattr(self, "_on_plan"):  # (a panel whose construction failed has nothing to stop)
+            self._closed = True
             self._cancel.set()
             try:
                 self.session.unobserve(self._on_plan, "plan")
@@ -313,7 +325,7 @@ class FootagePanel(w.VBox):
         r = self.result
         if r is None:
             raise ValueError("the timeline is not computed yet (call wait())")
-        return frame_decisions(compile_lookup(r.network, r.plan), compile_float_lookup(r.network),
+        return frame_decisions(compile_lookup(r.network, r.plan), compile_float_lookup(r.float_network),
                                self.frames[position].rgb)  # fmt: skip
 
     def summary(self) -> str:

@@ -143,3 +143,35 @@ def test_every_explorer_view_shows_the_current_frame(fruit_net, fruit_plan, belt
     assert_explorer_matches_kernel(ex, frames[N - 2])
     panel.close()
     assert_explorer_matches_kernel(ex, belt_image)
+
+
+def test_a_network_swap_recomputes_against_the_original_float(session, clip):
+    """After the explorer's refine swaps a network in, the timeline's "float" stays the original network.
+
+    Outside reference: the original network's own float64 forward pass (``emulate(...).float_decisions``
+    of the original network) on each decoded frame.
+    """
+    import dataclasses
+
+    panel = FootagePanel(session, clip, background=False)
+    original = session.network
+    first = original.layers[0]
+    other = original.replace_layers([dataclasses.replace(first, weights=np.asarray(first.weights) * 1.5),
+                                     *original.layers[1:]])  # fmt: skip
+    session.use_network(other)
+    session.flush()
+    r = panel.result
+    assert r is not None and r.network == other and r.float_network == original and not panel.stale
+    assert r.frames == analyse_footage(other, session.plan, clip, reference=original).frames
+    frames = demo_frames(N, W, H)
+    own = [emulate(other, session.plan, f).float_decisions for f in frames]
+    # the swapped network's own float differs from the original's somewhere (else this proves nothing)
+    assert any(not np.array_equal(o, emulate(original, session.plan, f).float_decisions) for o, f in zip(own, frames))
+    for i in (0, N - 1):
+        fx, fl = panel.frame_difference(i)
+        assert np.array_equal(fx, emulate(other, session.plan, frames[i]).decisions)
+        assert np.array_equal(fl, emulate(original, session.plan, frames[i]).float_decisions)
+    panel.close()
+    session.use_network(original)
+    session.flush()
+    assert panel.result is r  # a closed panel no longer follows the session

@@ -119,6 +119,13 @@ class FootageAnalysis:
     frames: list[dict[str, Any]]
     cancelled: bool = False
     timing: dict[str, float] = field(default_factory=dict)
+    #: the network whose float pass is "float" (None: ``network`` itself; a refined network's original)
+    reference: Network | None = None
+
+    @property
+    def float_network(self) -> Network:
+        """The network whose float decisions the records compare with."""
+        return self.network if self.reference is None else self.reference
 
     @property
     def totals(self) -> dict[str, Any]:
@@ -264,6 +271,7 @@ def analyse_footage(
     source_info: dict[str, Any] | None = None,
     labels: Footage | str | os.PathLike[str] | None = None,
     overlay: str | os.PathLike[str] | None = None,
+    reference: Network | None = None,
 ) -> FootageAnalysis:
     """Analyse every frame of ``source``: a path for :func:`~.reader.open_footage`, a :class:`Footage`,
     or a list of decoded :class:`~.reader.Frame` (then ``source_info`` is the result's ``source``).
@@ -288,6 +296,9 @@ def analyse_footage(
     overlay
         Also write a video (``.mkv`` lossless or ``.mp4``) of the frames with the disagreement
         marked and the fixed mask outlined (:mod:`.overlay`).
+    reference
+        The network whose float pass is "float" (default ``network``): after a refine swap, the
+        original network, so the records compare the refined integers with the trained model.
     """
     if network.n_in != 3 or network.input_bits != 8:
         raise ValueError(f"network must take 3 inputs of 8 bits (RGB) for footage, not {network.n_in} inputs of "
@@ -303,7 +314,7 @@ def analyse_footage(
     t0 = time.perf_counter()
     fixed = compile_lookup(network, plan)
     t1 = time.perf_counter()
-    flt = compile_float_lookup(network)
+    flt = compile_float_lookup(network if reference is None else reference)
     _frame_record(fixed, flt, np.zeros((1, 1, 3), np.uint8))  # compiles the fused loop before the clock starts
     t2 = time.perf_counter()
     total = 0
@@ -360,4 +371,4 @@ def analyse_footage(
     timing = {"fixed_lookup_s": t1 - t0, "float_lookup_s": t2 - t1, "decode_s": decode, "analyse_s": analyse,
               "analyse_cpu_s": analyse_cpu}  # fmt: skip
     info = clip.info.to_dict() if clip is not None else dict(source_info or {})
-    return FootageAnalysis(info, plan, network, records, cancelled, timing)
+    return FootageAnalysis(info, plan, network, records, cancelled, timing, reference)
