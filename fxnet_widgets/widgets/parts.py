@@ -14,7 +14,7 @@ from itertools import combinations
 import numpy as np
 
 from ..core.analysis.metrics import error_metrics, pair_counts
-from ..core.kernel import Emulation, emulate
+from ..core.kernel import Emulation, _compiled, emulate
 from ..core.kernel.evaluate import Prepared, prepare
 from ..core.plan import Plan
 from ..render.raster import DownscaledImage
@@ -55,6 +55,7 @@ def image_part(data: SessionData, plan: Plan, full_resolution: bool) -> ImageRes
     else:
         codes, factor = data.preview.codes, data.preview.factor
     net = data.network
+    _compiled.load_for(codes.shape[0] * codes.shape[1])  # every control change re-runs the image: worth the import
     emu = emulate(net, plan, _prepared(codes, net.input_bits, net.n_in))
     h, w = data.image.shape[:2]
     note = DownscaledImage(codes, factor, (h, w)).note
