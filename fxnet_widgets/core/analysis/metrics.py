@@ -21,7 +21,7 @@ from typing import Any
 
 import numpy as np
 
-from ..kernel import Emulation
+from ..kernel import Emulation, _compiled
 
 __all__ = ["ErrorMetrics", "error_metrics", "check_labels", "pair_counts"]
 
@@ -162,9 +162,16 @@ def _abs_errors(result: Emulation, last: Any, out_frac: int) -> np.ndarray:
     table = np.ldexp(np.arange(lo, hi + 1, dtype=np.float64), -out_frac)
     li = len(result.integer_network.layers) - 1
     err = np.empty((n, n_out), dtype=np.float64) if n_out > 1 else None
+    kern = _compiled.kernels() if _compiled.use_compiled(n) else None
     for j in range(n_out):
         codes = result.neuron_codes(li, j)
         col = np.empty(n, dtype=np.float64)
+        if kern is not None:  # the same float64 operations, fused in one pass (FXNET_KERNEL=numpy: below)
+            kern.abs_error(codes, lo, table, ref[:, j], col)
+            if err is None:
+                return col.reshape(n, 1)
+            err[:, j] = col
+            continue
         for a in range(0, n, _CHUNK):  # take copies its index to intp: a chunk at a time, not 8 bytes a sample
             b = min(a + _CHUNK, n)
             c = codes[a:b]
