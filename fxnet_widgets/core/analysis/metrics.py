@@ -135,8 +135,14 @@ def pair_counts(rows: np.ndarray, cols: np.ndarray, k: int) -> np.ndarray:
 
     >>> pair_counts(np.array([0, 1, 1, 1]), np.array([0, 1, 0, 1]), 2).tolist()
     [[1, 0], [1, 2]]
+    >>> pair_counts(np.array([0, 1, 1, 1], np.uint8), np.array([0, 1, 0, 1], np.uint8), 2).tolist()
+    [[1, 0], [1, 2]]
     """
     rows, cols = np.asarray(rows).reshape(-1), np.asarray(cols).reshape(-1)
+    if k == 2 and rows.dtype.kind in "bu" and cols.dtype.kind in "bu":  # two classes: three counts, no pair index
+        n, r1, c1 = rows.shape[0], int(np.count_nonzero(rows)), int(np.count_nonzero(cols))
+        both = int(np.count_nonzero(rows & cols))
+        return np.array([[n - r1 - c1 + both, c1 - both], [r1 - both, both]], dtype=np.int64)
     out = np.zeros(k * k, dtype=np.int64)
     for a in range(0, rows.shape[0], _CHUNK):
         pair = rows[a : a + _CHUNK].astype(np.int64)

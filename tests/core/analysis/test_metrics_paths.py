@@ -53,3 +53,14 @@ def test_error_metrics_equal_the_straightforward_formulas(act, n_out, out_bits, 
     assert m.confusion == tuple(tuple(int(np.sum((lab == a) & (dec == b))) for b in range(k)) for a in range(k))
     assert m.accuracy == float(np.mean(dec == lab))
     assert m.mismatch == int(np.sum(dec != r.float_decisions.reshape(-1)))
+
+
+@pytest.mark.parametrize("k, dtype", [(2, np.uint8), (2, np.int64), (2, np.bool_), (3, np.uint8)])
+def test_pair_counts_equal_counting_each_pair(k, dtype):
+    from fxnet_widgets.core.analysis.metrics import pair_counts
+
+    rng = np.random.default_rng(k)
+    rows, cols = (rng.integers(0, k, 5000).astype(dtype) for _ in range(2))
+    # the definition: entry (a, b) counts the samples i with rows[i] == a and cols[i] == b
+    want = [[int(np.sum((rows == a) & (cols == b))) for b in range(k)] for a in range(k)]
+    assert pair_counts(rows, cols, k).tolist() == want
