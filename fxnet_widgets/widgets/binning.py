@@ -14,7 +14,7 @@ from collections import OrderedDict
 import numpy as np
 
 from ..core.formats import signed_range
-from ..core.kernel import Emulation, IntegerLayer
+from ..core.kernel import Emulation, IntegerLayer, _compiled
 from .results import NeuronResult, layer_kind
 
 __all__ = ["histogram_edges", "table_edges", "exact_sums", "BinCounter", "neuron_results"]
@@ -90,13 +90,16 @@ class BinCounter:
             self._cache.move_to_end(key)
             return hit[1]
         counts = np.zeros(n_bins, dtype=np.int64)
-        for a in range(0, d.shape[0], _CHUNK):  # bincount copies to intp: bounded temporaries on a large frame
-            idx = d[a : a + _CHUNK].astype(np.int64)
-            if off:
-                idx += np.int64(off)
-            if shift:
-                idx >>= shift
-            counts += np.bincount(idx, minlength=n_bins)[:n_bins]
+        if _compiled.use_compiled(d.shape[0]):  # one pass, the same counts (FXNET_KERNEL=numpy: below)
+            _compiled.kernels().shifted_counts(d, off, shift, counts)
+        else:
+            for a in range(0, d.shape[0], _CHUNK):  # bincount copies to intp: bounded temporaries on a large frame
+                idx = d[a : a + _CHUNK].astype(np.int64)
+                if off:
+                    idx += np.int64(off)
+                if shift:
+                    idx >>= shift
+                counts += np.bincount(idx, minlength=n_bins)[:n_bins]
         if not d.flags.writeable:  # read-only: the values behind this identity cannot change
             counts.setflags(write=False)
             self._cache[key] = (weakref.ref(d), counts)

@@ -316,6 +316,7 @@ class CubePanel(w.VBox):
         kwargs.setdefault("layout", w.Layout(flex="0 0 auto"))
         super().__init__(parts, **kwargs)
         self._last: Any = None
+        self._drawn: Any = None  # what the picture shows: (classes, grid, fixed, float bytes)
         session.add_view("cube", self._draw)
 
     def _draw(self, result: SessionResult) -> None:
@@ -324,7 +325,10 @@ class CubePanel(w.VBox):
         if cube is self._last:
             return
         self._last = cube
-        self.image.value = cube_png(cube.fixed, cube.float_, self.size, result.n_classes)
+        key = (result.n_classes, cube.grid.tobytes(), cube.fixed.tobytes(), cube.float_.tobytes())
+        if key != self._drawn:  # a plan change that leaves every grid decision as it was keeps the picture
+            self._drawn = key
+            self.image.value = cube_png(cube.fixed, cube.float_, self.size, result.n_classes)
         n = cube.grid.size
         if self.class_map is not None:
             self.class_map.value = decision_mask_png(cube_class_tiles(cube.fixed), result.n_classes)

@@ -17,7 +17,7 @@ from itertools import combinations
 import numpy as np
 
 from ..core.analysis.metrics import error_metrics, pair_counts
-from ..core.kernel import Emulation, emulate
+from ..core.kernel import Emulation, _compiled, emulate
 from ..core.kernel.caches import FLOAT_CACHE
 from ..core.kernel.emulation import _FloatRef
 from ..core.kernel.evaluate import Prepared, prepare
@@ -88,6 +88,7 @@ def image_part(data: SessionData, plan: Plan, full_resolution: bool) -> ImageRes
     else:
         codes, factor = data.preview.codes, data.preview.factor
     net = data.network
+    _compiled.load_for(codes.shape[0] * codes.shape[1])  # every control change re-runs the image: worth the import
     emu = _emulate(data, plan, _prepared(codes, net.input_bits, net.n_in))
     h, w = data.image.shape[:2]
     note = DownscaledImage(codes, factor, (h, w)).note

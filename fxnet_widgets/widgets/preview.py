@@ -12,6 +12,7 @@ import html
 from typing import Any
 
 import ipywidgets as w
+import numpy as np
 import traitlets as t
 
 from ..render.raster import MAX_RINGED, decision_mask_png, overlay_background, overlay_png, png_bytes
@@ -77,6 +78,7 @@ class PreviewPanel(w.VBox):
         self._codes: Any = None
         self._digest = ""
         self._background: Any = None
+        self._drawn: Any = None  # (classes, decisions) the fixed and overlay pictures show
         self._last: Any = None
         wrap = {"flex_flow": "row wrap", "align_items": "flex-start"}
         rows = [w.HBox(cells, layout=w.Layout(**wrap)), self.legend,
@@ -92,14 +94,18 @@ class PreviewPanel(w.VBox):
         self._last = im
         n = result.n_classes
         # the float decisions depend on the codes and the network only; the session keeps each codes array alive
-        if im.codes is not self._codes or self.session.network.digest != self._digest:
+        new_input = im.codes is not self._codes or self.session.network.digest != self._digest
+        if new_input:
             self._codes, self._digest = im.codes, self.session.network.digest
             self.input_image.value = png_bytes(im.codes)
             self.float_image.value = decision_mask_png(im.float_, n)
             self._background = overlay_background(im.codes)
-        self.fixed_image.value = decision_mask_png(im.fixed, n)
-        self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n, rings=True,
-                                               background=self._background)  # fmt: skip
+        # a plan change that leaves every decision as it was (same input, classes) keeps both pictures
+        if new_input or self._drawn is None or self._drawn[0] != n or not np.array_equal(self._drawn[1], im.fixed):
+            self._drawn = (n, np.array(im.fixed))
+            self.fixed_image.value = decision_mask_png(im.fixed, n)
+            self.overlay_image.value = overlay_png(im.codes, im.fixed, im.float_, n, rings=True,
+                                                   background=self._background)  # fmt: skip
         m = im.mismatch
         if m == 0:
             said = "no pixel differs"

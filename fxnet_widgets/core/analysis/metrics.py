@@ -21,7 +21,7 @@ from typing import Any
 
 import numpy as np
 
-from ..kernel import Emulation
+from ..kernel import Emulation, _compiled
 
 __all__ = ["ErrorMetrics", "error_metrics", "check_labels", "pair_counts"]
 
@@ -135,8 +135,14 @@ def pair_counts(rows: np.ndarray, cols: np.ndarray, k: int) -> np.ndarray:
 
     >>> pair_counts(np.array([0, 1, 1, 1]), np.array([0, 1, 0, 1]), 2).tolist()
     [[1, 0], [1, 2]]
+    >>> pair_counts(np.array([0, 1, 1, 1], np.uint8), np.array([0, 1, 0, 1], np.uint8), 2).tolist()
+    [[1, 0], [1, 2]]
     """
     rows, cols = np.asarray(rows).reshape(-1), np.asarray(cols).reshape(-1)
+    if k == 2 and rows.dtype.kind in "bu" and cols.dtype.kind in "bu":  # two classes: three counts, no pair index
+        n, r1, c1 = rows.shape[0], int(np.count_nonzero(rows)), int(np.count_nonzero(cols))
+        both = int(np.count_nonzero(rows & cols))
+        return np.array([[n - r1 - c1 + both, c1 - both], [r1 - both, both]], dtype=np.int64)
     out = np.zeros(k * k, dtype=np.int64)
     for a in range(0, rows.shape[0], _CHUNK):
         pair = rows[a : a + _CHUNK].astype(np.int64)
@@ -162,9 +168,16 @@ def _abs_errors(result: Emulation, last: Any, out_frac: int) -> np.ndarray:
     table = np.ldexp(np.arange(lo, hi + 1, dtype=np.float64), -out_frac)
     li = len(result.integer_network.layers) - 1
     err = np.empty((n, n_out), dtype=np.float64) if n_out > 1 else None
+    kern = _compiled.kernels() if _compiled.use_compiled(n) else None
     for j in range(n_out):
         codes = result.neuron_codes(li, j)
         col = np.empty(n, dtype=np.float64)
+        if kern is not None:  # the same float64 operations, fused in one pass (FXNET_KERNEL=numpy: below)
+            kern.abs_error(codes, lo, table, ref[:, j], col)
+            if err is None:
+                return col.reshape(n, 1)
+            err[:, j] = col
+            continue
         for a in range(0, n, _CHUNK):  # take copies its index to intp: a chunk at a time, not 8 bytes a sample
             b = min(a + _CHUNK, n)
             c = codes[a:b]

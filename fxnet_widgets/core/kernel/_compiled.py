@@ -14,6 +14,7 @@ to the look-up domain):
                 4-7 are monotone in the sum (no accumulator overflow on the data): a bucket
                 whose first sum and the next bucket's give the same code and events gives
                 them throughout; the samples of the other buckets are listed and computed exactly
+``shifted_counts`` a histogram of ``(sum - origin) >> shift`` (a view's neuron histogram), one pass
 ``abs_error``   ``|value[code] - float|`` per sample in float64, the numpy path's operations
                 fused (a search's output error; numpy's own ``max`` and ``mean`` follow)
 
@@ -140,6 +141,16 @@ class _Kernels:
             for i in range(codes.shape[0]):
                 out[i] = abs(values[np.int64(codes[i]) - lo] - ref[i])
 
+        @numba.njit(cache=True, nogil=True, boundscheck=False)
+        def shifted_counts(d: np.ndarray, off: int, shift: int, counts: np.ndarray) -> None:  # pragma: no cover
+            # counts[(d + off) >> shift] += 1 for the values in 0..len(counts)-1 (the numpy path's bincount, cut)
+            nb = counts.shape[0]
+            for i in range(d.shape[0]):
+                q = (np.int64(d[i]) + off) >> shift
+                if 0 <= q < nb:
+                    counts[q] += 1
+
+        self.shifted_counts = shifted_counts
         self.abs_error = abs_error
         self.dense_sums = dense_sums
         self.lut_apply = lut_apply

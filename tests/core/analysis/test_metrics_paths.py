@@ -5,6 +5,7 @@ import pytest
 
 import fxnet_widgets as fw
 from fxnet_widgets.core.analysis.metrics import error_metrics
+from fxnet_widgets.core.kernel import _compiled
 
 
 def _case(act, n_out, out_bits, out_frac=3):
@@ -27,8 +28,12 @@ def _case(act, n_out, out_bits, out_frac=3):
 CASES = [("sigmoid", 1, 8), ("tanh", 1, 7), ("tanh", 3, 8), ("relu", 2, 16), ("identity", 3, 12), ("identity", 1, 6)]
 
 
+@pytest.mark.parametrize("path", ["numpy", "numba"])
 @pytest.mark.parametrize("act, n_out, out_bits", CASES)
-def test_error_metrics_equal_the_straightforward_formulas(act, n_out, out_bits):
+def test_error_metrics_equal_the_straightforward_formulas(act, n_out, out_bits, path, monkeypatch):
+    # both kernel paths (FXNET_KERNEL; the compiled error pass runs on these 600 samples too)
+    monkeypatch.setenv("FXNET_KERNEL", path)
+    monkeypatch.setattr(_compiled, "MIN_SAMPLES", 0)
     net, plan, rng = _case(act, n_out, out_bits)
     img = rng.integers(0, 256, (20, 30, 3)).astype(np.uint8)
     r = fw.emulate(net, plan, img)
@@ -48,3 +53,14 @@ def test_error_metrics_equal_the_straightforward_formulas(act, n_out, out_bits):
     assert m.confusion == tuple(tuple(int(np.sum((lab == a) & (dec == b))) for b in range(k)) for a in range(k))
     assert m.accuracy == float(np.mean(dec == lab))
     assert m.mismatch == int(np.sum(dec != r.float_decisions.reshape(-1)))
+
+
+@pytest.mark.parametrize("k, dtype", [(2, np.uint8), (2, np.int64), (2, np.bool_), (3, np.uint8)])
+def test_pair_counts_equal_counting_each_pair(k, dtype):
+    from fxnet_widgets.core.analysis.metrics import pair_counts
+
+    rng = np.random.default_rng(k)
+    rows, cols = (rng.integers(0, k, 5000).astype(dtype) for _ in range(2))
+    # the definition: entry (a, b) counts the samples i with rows[i] == a and cols[i] == b
+    want = [[int(np.sum((rows == a) & (cols == b))) for b in range(k)] for a in range(k)]
+    assert pair_counts(rows, cols, k).tolist() == want
