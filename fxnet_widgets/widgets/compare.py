@@ -24,7 +24,6 @@ from ..core.kernel import EVENT_NAMES, emulate
 from ..core.plan import Plan
 from ..render.palette import slice_palette
 from ..render.raster import comparison_codes, overlay_png, palette_png
-from .parts import against_reference
 
 __all__ = ["ComparePanel", "PlanComparison", "compare_plans", "SLICE_AXES"]
 
@@ -123,7 +122,7 @@ def compare_plans(session: Any, plan_a: Plan, plan_b: Plan) -> PlanComparison:
     for what, codes, labels in parts:
         got = {}
         for tag, plan in (("a", plan_a), ("b", plan_b)):
-            emu = against_reference(emulate(net, plan, codes), session.data.reference)  # float: the original
+            emu = emulate(net, plan, codes).against(session.data.reference)  # float: the original
             m = error_metrics(emu, labels)
             for k, v in m.events.items():  # clipped weights and biases belong to the plan: count them once
                 events[tag][k] = int(v) if k in ("weight_clip", "bias_clip") else events[tag][k] + int(v)

@@ -5,7 +5,7 @@ which caches by value); :func:`data_figures` turns one data set's emulation into
 its figures (error metrics, the float-versus-fixed agreement matrix, argmax ties).
 "Float" is always the float pass of the data's reference network (the original,
 trained one) even while the integers come from another (a refined network swapped
-in): :func:`against_reference` gives each part's emulation that float side.
+in): the kernel's ``Emulation.against`` gives each part's emulation that float side.
 """
 
 from __future__ import annotations
@@ -18,16 +18,13 @@ import numpy as np
 
 from ..core.analysis.metrics import error_metrics, pair_counts
 from ..core.kernel import Emulation, _compiled, emulate
-from ..core.kernel.caches import FLOAT_CACHE
-from ..core.kernel.emulation import _FloatRef
 from ..core.kernel.evaluate import Prepared, prepare
-from ..core.network import Network
 from ..core.plan import Plan
 from ..render.raster import DownscaledImage
 from .data import SessionData
 from .results import SLICES, CubeResult, DataFigures, ImageResult, SampleResult, SliceResult
 
-__all__ = ["against_reference", "image_part", "samples_part", "slices_part", "cube_part", "data_figures", "argmax_ties"]
+__all__ = ["image_part", "samples_part", "slices_part", "cube_part", "data_figures", "argmax_ties"]
 
 
 _PREPARED: OrderedDict[tuple[int, int, int], tuple[weakref.ref, Prepared]] = OrderedDict()
@@ -54,31 +51,8 @@ def _prepared(codes: np.ndarray, bits: int, n_in: int) -> np.ndarray | Prepared:
     return prep
 
 
-class _AgainstReference(Emulation):
-    """An emulation whose float side (``float_out``, ``float_decisions``) is another network's float pass.
-
-    It shares every integer array of the emulation it wraps; the reference's float pass on the
-    same codes is cached by value, like the kernel's own float reference.
-    """
-
-    def __init__(self, emu: Emulation, reference: Network) -> None:  # no kernel run: emu's arrays are shared
-        self.__dict__.update(emu.__dict__)
-        self.reference = reference
-
-    def _float_ref(self) -> _FloatRef:
-        ref, prep = self.reference, self._prep
-        return FLOAT_CACHE.get((ref.digest, prep.key), lambda: _FloatRef(ref, ref.predict(prep.flat)))
-
-
-def against_reference(emu: Emulation, reference: Network) -> Emulation:
-    """``emu`` with the float side of ``reference`` (``emu`` itself when it was computed with ``reference``)."""
-    if emu.network is reference or emu.network.digest == reference.digest:
-        return emu
-    return _AgainstReference(emu, reference)
-
-
 def _emulate(data: SessionData, plan: Plan, codes: np.ndarray | Prepared) -> Emulation:
-    return against_reference(emulate(data.network, plan, codes), data.reference)
+    return emulate(data.network, plan, codes).against(data.reference)
 
 
 def image_part(data: SessionData, plan: Plan, full_resolution: bool) -> ImageResult:

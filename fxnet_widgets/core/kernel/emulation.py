@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import copy
 from typing import Any
 
 import numpy as np
@@ -75,6 +76,8 @@ class Emulation:
         self.n = prep.n
         self.events = [o.events for o in outs]
         self.safe_acc_bits = [L.safe_acc_bits for L in intnet.layers]
+        #: the network whose float pass is this emulation's "float" (see :meth:`against`)
+        self.float_network = intnet.network
         last = outs[-1].codes
         # the narrowest unsigned type that holds every class index (uint8 up to 256 classes):
         # on a 4K frame int64 decisions alone are 2.7x the frame's bytes; the .npz file keeps int64
@@ -152,9 +155,25 @@ class Emulation:
             for mn, mx in zip(self.observed_min, self.observed_max)
         ]
 
+    def against(self, reference: Network) -> Emulation:
+        """This emulation with ``reference``'s float pass as its float side (``float_out``, ``float_decisions``).
+
+        The integer results are shared, not recomputed; ``reference`` must take the same inputs and
+        give as many outputs (a refined network's original, say). ``self`` when it already is the reference.
+        """
+        if reference == self.float_network:
+            return self
+        if (reference.n_in, reference.n_out) != (self.network.n_in, self.network.n_out):
+            raise ValueError(f"reference must have {self.network.n_in} inputs and {self.network.n_out} outputs, "
+                             f"not {reference.n_in} and {reference.n_out}")  # fmt: skip
+        other = copy.copy(self)
+        other.float_network = reference
+        return other
+
     def _float_ref(self) -> _FloatRef:
-        key = (self.network.digest, self._prep.key)
-        return FLOAT_CACHE.get(key, lambda: _FloatRef(self.network, self.network.predict(self._prep.flat)))
+        net = self.float_network
+        key = (net.digest, self._prep.key)
+        return FLOAT_CACHE.get(key, lambda: _FloatRef(net, net.predict(self._prep.flat)))
 
     @property
     def float_out(self) -> np.ndarray:
