@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import contextlib
+from collections.abc import Iterator
 from typing import Any
 
+import pytest
 from hypothesis import strategies as st
 
 from fxnet_widgets.core.formats import ROUNDINGS
@@ -45,3 +48,20 @@ def draw_network_and_plan(draw: Any, max_bits: int = 10) -> tuple[dict, list[dic
         "output": {"threshold": draw(st.floats(-1, 1, width=64))},
     }
     return doc, plans, bits, n_in
+
+
+@contextlib.contextmanager
+def kernel_path(path: str) -> Iterator[None]:
+    """Run the block on one kernel path: "numpy" (the reference) or "numba" (the compiled loops, at any size).
+
+    The caches are keyed by value, not by path, so each block starts with them empty.
+    """
+    from fxnet_widgets.core import kernel
+    from fxnet_widgets.core.kernel import _compiled
+
+    kernel.clear_caches()
+    with pytest.MonkeyPatch.context() as m:
+        m.setenv("FXNET_KERNEL", path)
+        if path != "numpy":
+            m.setattr(_compiled, "MIN_SAMPLES", 0)
+        yield

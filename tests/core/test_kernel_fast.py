@@ -9,7 +9,7 @@ slice is also checked against ``tests/_support/fxref.py`` (the contract on Pytho
 import fxref
 import numpy as np
 import pytest
-from fxcases import draw_network_and_plan
+from fxcases import draw_network_and_plan, kernel_path
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -28,13 +28,7 @@ def cases(draw):
 
 
 def _run(net, plan, codes, path):
-    kernel.clear_caches()  # the caches are keyed by value, not by path: start each run empty
-    with pytest.MonkeyPatch.context() as m:
-        if path == "numpy":
-            m.setenv("FXNET_KERNEL", "numpy")
-        else:
-            m.setenv("FXNET_KERNEL", "numba")
-            m.setattr(_compiled, "MIN_SAMPLES", 0)
+    with kernel_path(path):
         r = fw.emulate(net, plan, codes)
     out = {
         "acc": [a.tolist() for a in r.acc],

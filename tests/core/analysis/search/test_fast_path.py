@@ -10,14 +10,13 @@ import dataclasses
 
 import numpy as np
 import pytest
-from fxcases import draw_network_and_plan
+from fxcases import draw_network_and_plan, kernel_path
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 import fxnet_widgets as fw
 from fxnet_widgets.core import kernel
 from fxnet_widgets.core.analysis.search.evaluate import PlanTask, _run_chunk
-from fxnet_widgets.core.kernel import _compiled
 from fxnet_widgets.core.kernel.build import safe_acc_widths
 from fxnet_widgets.core.starting import with_safe_acc
 
@@ -38,13 +37,7 @@ def cases(draw):
 
 
 def _records(net, plans, codes, labels, path):
-    kernel.clear_caches()
-    with pytest.MonkeyPatch.context() as m:
-        if path == "numpy":
-            m.setenv("FXNET_KERNEL", "numpy")
-        else:
-            m.setenv("FXNET_KERNEL", "numba")
-            m.setattr(_compiled, "MIN_SAMPLES", 0)
+    with kernel_path(path):
         tasks = [PlanTask(i, (("case", i),), p.to_dict(), safe) for i, (p, safe) in
                  enumerate((p, s) for p in plans for s in (True, False))]  # fmt: skip
         recs = _run_chunk(net.to_dict(), codes, labels, tasks, "total_bits", {})
