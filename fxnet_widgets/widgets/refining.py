@@ -32,6 +32,7 @@ from ..core.network import Network, as_codes
 from ..core.plan import Plan
 from ..core.refine import METHODS, Refinement, refine
 from ..core.refine._api import PROGRESS_TOTAL
+from .background import BackgroundRun
 from .parts import slices_part
 from .results import SessionResult
 from .search_run import plan_q
@@ -85,8 +86,11 @@ def _line(r: Refinement, image: tuple[int, int, int] | None, drawn: int) -> str:
     return text
 
 
-class RefinePanel(w.VBox):
+class RefinePanel(BackgroundRun, w.VBox):
     """Method choice, "refine" and "stop", progress, the before/after line and the plain/refined toggle.
+
+    ``stop()`` ends a run with nothing swapped in (the plain network stays); ``join()`` waits
+    for a background run and its swap.
 
     Parameters
     ----------
@@ -140,9 +144,7 @@ class RefinePanel(w.VBox):
         self.refinement: Refinement | None = None
         #: "" when the last run worked, else its one-line error
         self.error = ""
-        self._stop = threading.Event()
-        self._thread: threading.Thread | None = None
-        self._running = False
+        self._init_run()
         #: per slice, the fixed-point decisions the dotted outline is drawn from (None: no outline)
         self.outline: tuple[np.ndarray, ...] | None = None
         self._outline_key: Any = None
@@ -150,10 +152,6 @@ class RefinePanel(w.VBox):
         session.add_view("refine", self._follow)
 
     # -- state ------------------------------------------------------------------------------
-    @property
-    def running(self) -> bool:
-        return self._running
-
     @property
     def stale(self) -> bool:
         """True when the last refinement was computed for another plan than the current one."""
@@ -186,17 +184,6 @@ class RefinePanel(w.VBox):
             self._thread = threading.Thread(target=self._work, args=(plan, method, loop), name="fxnet-refine",
                                             daemon=True)  # fmt: skip
             self._thread.start()
-
-    def stop(self) -> None:
-        """Stop the run: nothing is swapped in, the plain network stays."""
-        self._stop.set()
-
-    def join(self, timeout: float | None = None) -> bool:
-        """Wait for a background run (and its swap); True when none is running any more."""
-        t = self._thread
-        if t is not None:
-            t.join(timeout)
-        return not self._running
 
     def _clicked(self) -> None:
         try:

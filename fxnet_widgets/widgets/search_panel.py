@@ -37,6 +37,7 @@ from ..core.analysis import (
 )
 from ..core.kernel import emulate
 from ..core.plan import Plan
+from .background import BackgroundRun
 from .search_grid import GridEditor, grid_size, sub_grid
 from .search_plot import TradeOffFigure, moves_html
 from .search_run import (
@@ -68,8 +69,10 @@ def _y_of(r: SweepRecord, accuracy: bool) -> float:
     return 100.0 * float((r.accuracy if accuracy else r.mismatch_fraction) or 0.0)
 
 
-class SearchPanel(w.VBox):
+class SearchPanel(BackgroundRun, w.VBox):
     """Grid editor, budget, cost, sweep / tune / stop, progress, and the linked scatter.
+
+    ``stop()`` ends the run after the task in progress (its finished records are kept).
 
     Parameters
     ----------
@@ -145,9 +148,7 @@ class SearchPanel(w.VBox):
         self.add_class("fxnet-search")
         self._lock = threading.RLock()
         self._records: list[SweepRecord] = []
-        self._stop = threading.Event()
-        self._thread: threading.Thread | None = None
-        self._running = False
+        self._init_run()
         self._drawn_at = 0.0
         self._current: dict[tuple[Plan, str], tuple[float, float | None, float | None]] = {}
         self._metas: dict[int, tuple[SweepRecord, str, str]] = {}
@@ -178,10 +179,6 @@ class SearchPanel(w.VBox):
         """:func:`~fxnet_widgets.core.analysis.pareto_front` of :attr:`records`."""
         return pareto_front(self.records)
 
-    @property
-    def running(self) -> bool:
-        return self._running
-
     def _x(self, r: SweepRecord) -> float:
         return _x_of(r, self.cost_box.value)
 
@@ -202,17 +199,6 @@ class SearchPanel(w.VBox):
         """``tune`` to the budget from its generous start plan, drawing the records and the path of accepted moves."""
         budget, cost = float(self.budget_box.value), self.cost_box.value
         self._start("tune", lambda: self._tune(budget, cost), wait)
-
-    def stop(self) -> None:
-        """End the run after the task in progress; its finished records are kept."""
-        self._stop.set()
-
-    def join(self, timeout: float | None = None) -> bool:
-        """Wait for a background run; True when none is running any more."""
-        t = self._thread
-        if t is not None:
-            t.join(timeout)
-        return not self._running
 
     def _checked_grid(self) -> dict[str, list[Any]]:
         try:
