@@ -44,7 +44,6 @@ def _resource_table(panel: Any) -> str:
 
 def hardware_section_html(widget: Any) -> str:
     """The hardware section of the report of ``widget`` ("" when it has no panel, or the panel was never started)."""
-    from ..widgets.hardware_view import clock_of, clock_verdict
     from ..widgets.status import plan_widths
 
     panel = hardware_panel_of(widget)
@@ -69,7 +68,7 @@ def hardware_section_html(widget: Any) -> str:
             parts.append('<p class="stale"><strong>stale: computed for another network</strong> '
                          "(other weights under this plan), not the network of this report.</p>")
     pipeline = (panel.result_settings or {}).get("pipeline", "auto")
-    facts = [f"target {r.target}, device {r.device}", f"clock {clock_of(r)}",
+    facts = [f"target {r.target}, device {r.device}", f"clock {r.clock_text()}",
              f"pipeline {pipeline}", f"latency {r.latency} clocks" if r.latency is not None else "latency unknown",
              f"plan {plan_widths(panel.result_plan)}"]  # fmt: skip
     parts.append('<ul class="hardware-facts">' + "".join(f"<li>{esc(f)}</li>" for f in facts) + "</ul>")
@@ -78,7 +77,7 @@ def hardware_section_html(widget: Any) -> str:
     lines.append(f"carry cells: {r.carries}")
     lines.append(f"maximum clock: {r.fmax_mhz:.2f} MHz (nextpnr, seed {r.seed})" if r.fmax_mhz is not None
                  else "maximum clock: not timed")  # fmt: skip
-    verdict = clock_verdict(r)
+    verdict = r.clock_verdict()
     if verdict is not None:
         lines.append(verdict)
     parts.append('<ul class="hardware-timing">' + "".join(f"<li>{esc(x)}</li>" for x in lines) + "</ul>")

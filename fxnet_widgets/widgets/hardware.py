@@ -23,7 +23,7 @@ from ..core.analysis.video import VIDEO_FORMATS
 from ..core.fileio import first_line
 from ..core.plan import Plan
 from ..core.synth import CAUTION, TARGETS, SynthesisCancelled, SynthesisResult, synthesize
-from .hardware_view import bar_html, clock_verdict, resource_rows, settings_of, tools_line
+from .hardware_view import bar_html, resource_rows, settings_of, tools_line
 from .session import Session
 from .status import plan_widths
 
@@ -223,7 +223,7 @@ class HardwarePanel(w.VBox):
         lines = [] if r.fits else [f"does NOT fit: needs {'; '.join(r.overflows())}"]
         if r.fmax_mhz is not None:
             lines.append(f"maximum clock: {r.fmax_mhz:.2f} MHz (nextpnr, seed {r.seed})")
-        verdict = clock_verdict(r)
+        verdict = r.clock_verdict()
         if verdict is not None:
             lines.append(verdict)
         if r.latency is not None:

@@ -12,8 +12,7 @@ from dataclasses import dataclass
 from ..core.synth import SynthesisResult, target
 from ..core.synth.tools import PACKAGES
 
-__all__ = ["ResourceRow", "resource_rows", "clock_verdict", "bar_html", "missing_tools", "tools_line", "settings_of",
-           "clock_of"]
+__all__ = ["ResourceRow", "resource_rows", "bar_html", "missing_tools", "tools_line", "settings_of"]
 
 _NAMES = {"luts": "LUTs", "ffs": "flip-flops", "brams": "block RAMs", "dsps": "DSP blocks"}
 
@@ -49,21 +48,6 @@ def resource_rows(result: SynthesisResult, estimates: dict[str, int] | None) -> 
     return [ResourceRow(k, _NAMES[k], est.get(k), used, cap) for k, (used, cap) in result.use().items()]
 
 
-def clock_verdict(result: SynthesisResult) -> str | None:
-    """The maximum clock against the required one: met / NOT met with the margin; None without a clock."""
-    if result.clock_mhz is None:
-        return None
-    wanted = clock_of(result)
-    if result.meets_clock is None or result.fmax_mhz is None or result.margin is None:
-        why = ("the design does not fit" if not result.fits else "no place and route for this target"
-               if "nextpnr-ice40" not in result.tools else "no register-to-register path")  # fmt: skip
-        return f"required clock {wanted}: not timed ({why})"
-    slack = result.fmax_mhz - result.clock_mhz
-    if result.meets_clock:
-        return f"required clock {wanted}: met (margin x{result.margin:.2f}, {slack:.2f} MHz to spare)"
-    return f"required clock {wanted}: NOT met (margin x{result.margin:.2f}, {-slack:.2f} MHz short)"
-
-
 def bar_html(share: float | None, over: bool, width: int = 120) -> str:
     """A horizontal utilisation bar (red above 100 %) and its percentage; "-" without a device."""
     if share is None:
@@ -91,13 +75,6 @@ def tools_line(target_name: str) -> str:
             f"(Debian package{'s' if len(gone) > 1 else ''} {', '.join(pkgs)}: apt-get install {' '.join(pkgs)})")
 
 
-def clock_of(result: SynthesisResult) -> str:
-    """The clock a result was computed for, in words ("74.25 MHz (1280x720p60)", "no clock")."""
-    if result.clock_mhz is None:
-        return "no clock"
-    return f"{result.clock_mhz:g} MHz" + (f" ({result.video})" if result.video else "")
-
-
 def settings_of(result: SynthesisResult) -> str:
     """The target, device and clock a result was computed for, in words."""
-    return f"{result.target} ({result.device}), {clock_of(result)}"
+    return f"{result.target} ({result.device}), {result.clock_text()}"

@@ -65,6 +65,26 @@ class SynthesisResult:
         """``{resource: (used, capacity)}`` for LUTs, flip-flops, block RAMs and DSP blocks."""
         return {k: (int(getattr(self, k)), self.capacity.get(k)) for k in _UTIL_NAMES}
 
+    def clock_text(self) -> str:
+        """The clock this result was computed for, in words ("74.25 MHz (1280x720p60)", "no clock")."""
+        if self.clock_mhz is None:
+            return "no clock"
+        return f"{self.clock_mhz:g} MHz" + (f" ({self.video})" if self.video else "")
+
+    def clock_verdict(self) -> str | None:
+        """The maximum clock against the required one: met / NOT met with margin and slack; None without a clock."""
+        if self.clock_mhz is None:
+            return None
+        wanted = self.clock_text()
+        if self.meets_clock is None or self.fmax_mhz is None or self.margin is None:
+            why = ("the design does not fit" if not self.fits else "no place and route for this target"
+                   if "nextpnr-ice40" not in self.tools else "no register-to-register path")  # fmt: skip
+            return f"required clock {wanted}: not timed ({why})"
+        slack = self.fmax_mhz - self.clock_mhz
+        if self.meets_clock:
+            return f"required clock {wanted}: met (margin x{self.margin:.2f}, {slack:.2f} MHz to spare)"
+        return f"required clock {wanted}: NOT met (margin x{self.margin:.2f}, {-slack:.2f} MHz short)"
+
     def overflows(self) -> list[str]:
         """One phrase per resource the design needs more of than the device has."""
         return [
@@ -100,15 +120,9 @@ class SynthesisResult:
             lines.append(f"  latency: {self.latency} clocks")
         if self.fmax_mhz is not None:
             lines.append(f"  maximum clock (nextpnr, seed {self.seed}): {self.fmax_mhz:.2f} MHz")
-        if self.clock_mhz is not None:
-            wanted = f"{self.clock_mhz:g} MHz" + (f" ({self.video})" if self.video else "")
-            if self.meets_clock is None:
-                why = ("the design does not fit" if not self.fits else "no place and route" if "nextpnr-ice40"
-                       not in self.tools else "no register-to-register path")  # fmt: skip
-                lines.append(f"  required clock {wanted}: not timed ({why})")
-            else:
-                verdict = "met" if self.meets_clock else "NOT met"
-                lines.append(f"  required clock {wanted}: {verdict} (margin x{self.margin:.2f})")
+        verdict = self.clock_verdict()
+        if verdict is not None:
+            lines.append("  " + verdict)
         lines.append("  tools: " + "; ".join(self.tools.values()))
         lines.append("  " + CAUTION)
         return "\n".join(lines)
