@@ -23,7 +23,7 @@ import numpy as np
 
 from ..kernel import Emulation, _compiled
 
-__all__ = ["ErrorMetrics", "error_metrics", "check_labels", "pair_counts"]
+__all__ = ["ErrorMetrics", "error_metrics", "output_errors", "check_labels", "pair_counts"]
 
 
 def check_labels(
@@ -191,6 +191,21 @@ def _abs_errors(result: Emulation, last: Any, out_frac: int) -> np.ndarray:
     return err
 
 
+def output_errors(result: Emulation) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
+    """``(err, largest, mean, out_frac)``: the N x n_out output errors ``|code / 2**out_frac - float|``,
+    their largest and mean per output (zeros without samples) and the output's fraction bits.
+
+    One definition for :func:`error_metrics` and the search's per-plan records.
+    """
+    last = result.integer_network.layers[-1]
+    out_frac = int(last.out_frac)
+    err = _abs_errors(result, last, out_frac)
+    if result.n:
+        return err, err.max(axis=0), err.mean(axis=0), out_frac
+    zeros = np.zeros(err.shape[1])
+    return err, zeros, zeros, out_frac
+
+
 def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
     """Error metrics of an emulation result against float (and against ``labels``).
 
@@ -211,13 +226,7 @@ def error_metrics(result: Emulation, labels: Any = None) -> ErrorMetrics:
         raise TypeError(f"result must be an Emulation, not {type(result).__name__}")
     net = result.network
     n = result.n
-    last = result.integer_network.layers[-1]
-    out_frac = int(last.out_frac)
-    err = _abs_errors(result, last, out_frac)
-    if n:
-        mx, mn = err.max(axis=0), err.mean(axis=0)
-    else:
-        mx = mn = np.zeros(err.shape[1])
+    err, mx, mn, out_frac = output_errors(result)
     dec = np.asarray(result.decisions).reshape(-1)
     fdec = np.asarray(result.float_decisions).reshape(-1)
     mismatch = int(np.count_nonzero(dec != fdec))

@@ -8,9 +8,10 @@ A search runs many plans on the same data. With the compiled loops in use (see
 * the guaranteed-safe widths come from :func:`~fxnet_widgets.core.kernel.build.safe_acc_widths`,
   which walks the layers through the cached weight and table parts (no second build of the
   whole integer network at the widest accumulators);
-* the output error is one fused pass (code value minus float, absolute, into one array), then
-  numpy's own ``max`` and ``mean`` on that array, so the floats are those of the reference bit
-  for bit; the record keeps only the scalars a search needs.
+* the output error comes from :func:`~fxnet_widgets.core.analysis.metrics.output_errors`, the
+  same function the reference's metrics use (one fused compiled pass per output, then numpy's
+  ``max`` and ``mean``), so the floats are the reference's bit for bit; the record keeps only
+  the scalars a search needs.
 
 ``FXNET_KERNEL=numpy`` keeps every plan on the reference path, and the tests run both
 paths on the same random cases and require identical records.
@@ -23,42 +24,20 @@ from typing import Any
 
 import numpy as np
 
-from ...kernel import _compiled, emulate
+from ...kernel import emulate
 from ...kernel.build import safe_acc_widths
 from ...kernel.evaluate import Prepared
 from ...network import Network
 from ...plan import LayerPlan, Plan, check_field
 from ..cost import hardware_cost
+from ..metrics import output_errors
 from .records import SweepRecord
 
 __all__ = ["evaluate_fast"]
 
-_LUT_CODES = 1 << 16  # as in metrics: output code ranges up to this size go through a value table
-
-
-def _error_stats(result: Any, n: int) -> tuple[float, float]:
+def _error_stats(result: Any) -> tuple[float, float]:
     """(largest, mean over outputs of the mean) output error in LSBs, as the reference computes them."""
-    last = result.integer_network.layers[-1]
-    out_frac = int(last.out_frac)
-    lo, hi = int(last.code_min), int(last.code_max)
-    ref = np.asarray(result.float_out, dtype=np.float64).reshape(n, -1)
-    n_out = ref.shape[1]
-    if hi - lo >= _LUT_CODES or n == 0:
-        fixed = np.ldexp(np.asarray(result.out_codes, dtype=np.float64).reshape(n, -1), -out_frac)
-        err = np.abs(fixed - ref)
-    else:
-        table = np.ldexp(np.arange(lo, hi + 1, dtype=np.float64), -out_frac)
-        li = len(result.integer_network.layers) - 1
-        kern = _compiled.kernels()
-        err = np.empty((n_out, n), dtype=np.float64)
-        for j in range(n_out):
-            kern.abs_error(result.neuron_codes(li, j), lo, table, ref[:, j], err[j])
-        # the reference's layout (N, n_out), C order: numpy's reductions then add in the same order
-        err = np.ascontiguousarray(err.T) if n_out > 1 else err.reshape(n, 1)
-    if n:
-        mx, mn = err.max(axis=0), err.mean(axis=0)
-    else:
-        mx = mn = np.zeros(err.shape[1])
+    _err, mx, mn, out_frac = output_errors(result)
     scale = 2.0**out_frac
     return max(float(v * scale) for v in mx), float(np.mean([float(v * scale) for v in mn]))
 
@@ -87,7 +66,7 @@ def evaluate_fast(
     except ValueError as exc:
         return SweepRecord(index, settings, plan, None, cost_key, error=str(exc))
     n = result.n
-    mx, mn = _error_stats(result, n)
+    mx, mn = _error_stats(result)
     dec = result._decisions
     fdec = np.asarray(result.float_decisions).reshape(-1)
     mismatch = int(np.count_nonzero(dec != fdec))
