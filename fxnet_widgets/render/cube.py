@@ -158,9 +158,11 @@ def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) ->
         # painter's algorithm by depth level: voxels of one level never cover each other
         order = np.argsort(level, kind="stable")
         bounds = np.flatnonzero(np.diff(level[order])) + 1
-        for grp in np.split(order, bounds):
-            idx = base[grp][:, None] + offsets[None, :]
-            canvas[idx] = np.where(edge[None, :], rim[grp][:, None], inner[grp][:, None])
+        # footprints and colours of every square at once, in level order: each level is then a slice
+        idx = base[order][:, None] + offsets[None, :]
+        vals = np.where(edge[None, :], rim[order][:, None], inner[order][:, None])
+        for a, b in zip(np.r_[0, bounds], np.r_[bounds, len(order)]):
+            canvas[idx[a:b]] = vals[a:b]
         canvas = canvas.reshape(side, side)[pad : pad + size, pad : pad + size]
         drawn = canvas != 0xFFFFFFFF
         v = canvas[drawn]

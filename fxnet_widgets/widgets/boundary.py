@@ -328,7 +328,9 @@ class CubePanel(w.VBox):
         key = (result.n_classes, cube.grid.tobytes(), cube.fixed.tobytes(), cube.float_.tobytes())
         if key != self._drawn:  # a plan change that leaves every grid decision as it was keeps the picture
             self._drawn = key
-            self.image.value = cube_png(cube.fixed, cube.float_, self.size, result.n_classes)
+            # redrawn on every change that moves a grid decision: stored deflate (level 0), the same
+            # pixels for about a fifth of level 1's encode time (0.2 vs 0.9 ms here), ~200 KB a picture
+            self.image.value = cube_png(cube.fixed, cube.float_, self.size, result.n_classes, compress_level=0)
         n = cube.grid.size
         if self.class_map is not None:
             self.class_map.value = decision_mask_png(cube_class_tiles(cube.fixed), result.n_classes)
