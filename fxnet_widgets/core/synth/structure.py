@@ -46,7 +46,11 @@ class Structure:
     """Live bit counts of one datapath on one target family (after folding and dead-logic removal).
 
     ``add_bits``: adder bits of two variable terms (from the first bit where both may be
-    nonzero); ``const_add_bits``: adder bits with a constant or one-bit term (a bias, a
+    nonzero); on Xilinx 7, where the carry chain (CARRY4) forms each sum bit itself and a
+    LUT gives only its propagate ``a ^ b``, the distinct propagates of two different variable
+    bits (sign-extension bits share one, as Yosys's ``opt_merge`` shares the LUT), and no
+    adder bit with a constant term costs a LUT (its propagate is a wire or an INV cell);
+    ``const_add_bits``: adder bits with a constant or one-bit term (a bias, a
     negated power-of-two product ``0 - x``, a rounding increment ``q + up``); ``cmp_bits``: comparator bits
     (saturation, clamps, threshold, argmax; one per compared bit); ``mux_bits``: bits
     chosen by those comparisons; ``rom_leaves``: per table in logic, the distinct
@@ -108,6 +112,14 @@ def _known(bits: tuple[int, ...] | list[int], signed: bool) -> int | None:
     return v - (1 << len(bits)) if signed and bits and bits[-1] else v
 
 
+def _signed_width(bits: tuple[int, ...]) -> int:
+    """Bits of a signed term once the copies of its top net are dropped (at least one)."""
+    w = len(bits)
+    while w > 1 and bits[w - 2] == bits[w - 1]:
+        w -= 1
+    return w
+
+
 def _const_bits(v: int, n: int) -> list[int]:
     v = wrap_to(v, n) % (1 << n) if n > 0 else 0
     return [(v >> b) & 1 for b in range(n)]
@@ -118,6 +130,7 @@ class _Walk:
         self.r, self.nets = r, _Nets()
         self.bits: dict[int, list[int]] = {}
         self.cell: dict[int, tuple[Any, ...]] = {}  # signal id -> (op, first new net, ...) for counting
+        self.pair: dict[int, tuple[int, int]] = {}  # adder net -> its operands' bits (the carry chain's propagate)
 
     def of(self, x: Sig, n: int) -> list[int]:
         """The nets of ``x`` as ``n`` bits (sign- or zero-extended, or its low bits)."""
@@ -174,7 +187,13 @@ class _Walk:
                 b += 1
             key = ("add", x, y)
             kind = "addc" if max(x) < 2 or max(y) < 2 else "add"  # a constant term
-            out += [N.new(key + (i,), kind, x[: i + 1] + y[: i + 1]) for i in range(b, n)]
+            top = max(_signed_width(x), _signed_width(y)) + 1  # Yosys's wreduce: the sum's bits above
+            for i in range(b, n):  # are copies of its sign bit
+                if i >= top and out:
+                    out.append(out[-1])
+                    continue
+                out.append(N.new(key + (i,), kind, x[: i + 1] + y[: i + 1]))
+                self.pair[out[-1]] = (x[i], y[i])
             return out
         if op == "round":
             src = self.of(a[0], a[0].width)
@@ -193,7 +212,9 @@ class _Walk:
             if n == 1 and up == q[0]:  # q + q in one bit: 0, found by ABC (after the register pass): a
                 return [N.new(("opaque", tuple(q)), "opaque", ())]  # kept register of no inputs
             key = ("round", tuple(q), up)
-            return [N.new(key + (b,), "add" if b == 0 else "addc", tuple(q[: b + 1]) + (up,)) for b in range(n)]
+            out = [N.new(key + (b,), "add" if b == 0 else "addc", tuple(q[: b + 1]) + (up,)) for b in range(n)]
+            self.pair[out[0]] = (q[0], up)
+            return out
         if op in ("sat", "clamp"):
             src_sig = self.r.target(a[0])
             src = self.of(a[0], a[0].width)
@@ -306,6 +327,7 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
         live.add(n)
         todo.extend(d for d in N.deps[n] if d not in live)
     add = addc = cmp = mux = leaves = selects = regs = brams = bram_mux = 0
+    chain_xor, propagates = fam == "xilinx-7", set()
     products: list[tuple[int, int, int]] = []
     bram_regs: set[int] = set()
     counted: set[Any] = set()
@@ -350,6 +372,13 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
                 continue
             counted.add(n)
             kind = N.kind[n]
+            if chain_xor:  # Xilinx 7: a LUT per distinct propagate of two different variable bits; none else
+                pair = W.pair.get(n)
+                if kind == "add" and pair is not None and min(pair) > 1 and pair[0] != pair[1]:
+                    propagates.add((min(pair), max(pair)))
+                if kind in ("add", "addc") or (isinstance(kind, tuple) and kind[0] == "mul" and kind[1] < 0
+                                               and (-kind[1]) & (-kind[1] - 1) == 0):  # fmt: skip
+                    continue
             if kind == "add":
                 add += 1
             elif kind == "addc":
@@ -367,5 +396,6 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
                     products.append((min(src.width + (0 if src.signed else 1), top),
                                      min(abs(c).bit_length() + 1, top), top))  # fmt: skip
     regs = sum(1 for n in live if N.kind[n] == "reg" and n not in bram_regs) + len(r.cuts)
+    add += len(propagates)
     return Structure(add, addc, cmp, mux, leaves, selects, bram_mux, regs, brams, tuple(products))
 
