@@ -47,3 +47,13 @@ def test_dsp48_count_with_products_as_multiplications(cache: Path):
     est = calibrations()["xilinx-7"].estimate(DEMO, plan, "multiply")
     got = synthesize(DEMO, plan, target="xilinx-7", place=False, products="multiply", cache_dir=cache)
     assert got.dsps > 0 and est["dsps"] == got.dsps and est["brams"] == got.brams
+
+
+def test_xilinx_adder_with_a_constant_term_costs_no_lut(cache: Path):
+    # the benchmark's plan 38 (1-bit layer-2 weights): what is left is a negated code plus the bias, an
+    # adder of one variable and a constant, which synth_xilinx maps onto CARRY4 and INV cells, no LUT
+    # (Yosys 0.23 itself is the reference: it reports 0 LUTs); the estimate must say 0, not a few
+    plan = calibration_plans(DEMO, 38, seed=10_000)[37]
+    got = synthesize(DEMO, plan, target="xilinx-7", place=False, cache_dir=cache)
+    est = calibrations()["xilinx-7"].estimate(DEMO, plan)
+    assert got.luts == 0 and got.carries > 0 and est["luts"] == 0, (est, got.luts, got.carries)
