@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 from PIL import Image, ImageDraw
 
+from ._paint import paint
 from .palette import AGREE_POSITIVE, DISAGREE, FIXED_ONLY, FLOAT_ONLY
 from .raster import _check_level, rgb_png
 
@@ -133,40 +134,29 @@ def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) ->
         faint = (np.array(AGREE_POSITIVE, dtype=np.float64) * 0.7 + np.array(_BACKGROUND) * 0.3).astype(np.uint8)
         img[geo.dot_y[agree_pos][ok], geo.dot_x[agree_pos][ok]] = faint
     if diff.any():
-        if n_classes == 2:
-            colour = np.where((fxf[diff] > flf[diff])[:, None], np.array(FIXED_ONLY), np.array(FLOAT_ONLY))
-        else:
-            colour = np.broadcast_to(np.array(DISAGREE), (int(diff.sum()), 3))
-        level = geo.level[diff]
-        base = geo.base[diff]
+        where = np.flatnonzero(diff)
+        level = geo.level[where]
+        base = geo.base[where]
         # a square drawn later on exactly the same footprint (the same view ray, nearer)
         # overwrites all of an earlier one: only the nearest level of each footprint is drawn
         nearest = np.full(geo.side * geo.side, -1, dtype=np.int64)
         np.maximum.at(nearest, base, level)
         keep = level == nearest[base]
-        colour, level, base = colour[keep], level[keep], base[keep]
-        shade = geo.shade[diff][keep]
+        where, level, base = where[keep], level[keep], base[keep]
+        if n_classes == 2:
+            colour = np.where((fxf[where] > flf[where])[:, None], np.array(FIXED_ONLY), np.array(FLOAT_ONLY))
+        else:
+            colour = np.broadcast_to(np.array(DISAGREE), (where.size, 3))
+        shade = geo.shade[where]
 
         def packed(rgb: np.ndarray) -> np.ndarray:  # RGB in one uint32: one store per pixel
             c = np.clip(rgb, 0, 255).astype(np.uint32)
             return (c[:, 0] << 16) | (c[:, 1] << 8) | c[:, 2]
 
         inner, rim = packed(colour * shade), packed(colour * shade * 0.78)
-        pad, side = geo.pad, geo.side
-        canvas = np.full(side * side, 0xFFFFFFFF, dtype=np.uint32)  # "nothing drawn"
-        offsets, edge = geo.offsets, geo.edge
-        # painter's algorithm by depth level: voxels of one level never cover each other
+        # painter's algorithm by depth level: nearer levels drawn later
         order = np.argsort(level, kind="stable")
-        bounds = np.flatnonzero(np.diff(level[order])) + 1
-        # footprints and colours of every square at once, in level order: each level is then a slice
-        idx = base[order][:, None] + offsets[None, :]
-        vals = np.where(edge[None, :], rim[order][:, None], inner[order][:, None])
-        for a, b in zip(np.r_[0, bounds], np.r_[bounds, len(order)]):
-            canvas[idx[a:b]] = vals[a:b]
-        canvas = canvas.reshape(side, side)[pad : pad + size, pad : pad + size]
-        drawn = canvas != 0xFFFFFFFF
-        v = canvas[drawn]
-        img[drawn] = np.stack([(v >> 16) & 255, (v >> 8) & 255, v & 255], axis=1).astype(np.uint8)
+        paint(img, geo.pad, geo.side, base[order], level[order], geo.offsets, geo.edge, inner[order], rim[order])
     pil = Image.fromarray(img)
     draw = ImageDraw.Draw(pil)
     for seg in front:
