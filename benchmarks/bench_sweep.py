@@ -205,7 +205,7 @@ def phases(net: fw.Network, codes: np.ndarray, grid: dict) -> None:
     for label, _m, _a, depth in _PHASES:
         print(f"    {'  ' * depth}{label:<{38 - 2 * depth}s}{1e3 * spent.get(label, 0.0) / n_plans:6.3f}")
     loops = sum(spent.get(name, 0.0) for name in _LOOPS)
-    print(f"    compiled loops in all (" + ", ".join(f"{k} {1e3 * spent.get(k, 0.0) / n_plans:.3f}" for k in _LOOPS)
+    print("    compiled loops in all (" + ", ".join(f"{k} {1e3 * spent.get(k, 0.0) / n_plans:.3f}" for k in _LOOPS)
           + f"): {1e3 * loops / n_plans:.3f}")  # fmt: skip
     print(f"    outside the loops: {1e3 * (cpu - loops) / n_plans:.3f}")
 

@@ -11,7 +11,8 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from typing import Any
 
-__all__ = ["LRU", "OUTPUT_CACHE", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
+__all__ = ["LRU", "OUTPUT_CACHE", "QUANT_CACHE",
+           "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
            "WEIGHT_CACHE",
            "clear_caches", "cache_stats"]  # fmt: skip
 

@@ -124,8 +124,8 @@ def _run_chunk(
     _compiled.load_for(prep.n)  # many plans on the same data: the compiled loops pay for their import
     if _compiled.use_compiled(prep.n):  # the fast path (same records; FXNET_KERNEL=numpy: the reference)
         return [
-            evaluate_fast(net, prep, labels, t.index, t.settings, Plan.from_dict(t.plan_doc) if t.plan is None else t.plan,
-                          t.safe_acc, cost_key, options)
+            evaluate_fast(net, prep, labels, t.index, t.settings,
+                          Plan.from_dict(t.plan_doc) if t.plan is None else t.plan, t.safe_acc, cost_key, options)
             for t in tasks
         ]  # fmt: skip
     return [_evaluate_one(net, prep, labels, t, cost_key, options) for t in tasks]
