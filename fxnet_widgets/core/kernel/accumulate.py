@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 
 from .. import formats
-from .caches import LRU
+from .caches import NARROW_CACHE
 from .layers import IntegerLayer
 
 __all__ = ["post_accumulate", "smallest_int"]
@@ -33,16 +33,12 @@ def smallest_int(lo: int, hi: int) -> type:
     return np.int64
 
 
-# by the table's identity; each entry holds its table, so that identity cannot be reused while cached
-_NARROW = LRU(64)
-
-
 def _narrow_table(layer: IntegerLayer) -> np.ndarray:
     """The layer's (read-only, shared) table in the codes' narrowest type, made once per table."""
     table = layer.table
     assert table is not None
     dt = smallest_int(layer.code_min, layer.code_max)  # holds every entry: the codes are the entries
-    held, narrow = _NARROW.get((id(table), dt), lambda: (table, table.astype(dt)))
+    held, narrow = NARROW_CACHE.get((id(table), dt), lambda: (table, table.astype(dt)))
     return narrow if held is table else table.astype(dt)
 
 

@@ -11,7 +11,7 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from typing import Any
 
-__all__ = ["LRU", "OUTPUT_CACHE", "QUANT_CACHE",
+__all__ = ["LRU", "MONOTONE_CACHE", "NARROW_CACHE", "OUTPUT_CACHE", "QUANT_CACHE",
            "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
            "WEIGHT_CACHE",
            "clear_caches", "cache_stats"]  # fmt: skip
@@ -73,10 +73,15 @@ WEIGHT_CACHE = LRU(256)
 #: (activation, output and table fields, the accumulator's fraction): a plan's guaranteed-safe
 #: widths and its build read the same parts (a search builds both per plan)
 OUTPUT_CACHE = LRU(256)
+#: per shared activation table (by identity; each entry holds its table, so that identity cannot
+#: be reused while cached): whether it never decreases, and its copy in the codes' narrowest type
+MONOTONE_CACHE = LRU(64)
+NARROW_CACHE = LRU(64)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
           "sums": SUM_CACHE, "table": TABLE_CACHE,
-          "weights": WEIGHT_CACHE, "output": OUTPUT_CACHE}  # fmt: skip
+          "weights": WEIGHT_CACHE, "output": OUTPUT_CACHE, "monotone": MONOTONE_CACHE,
+          "narrow_table": NARROW_CACHE}  # fmt: skip
 
 
 def clear_caches() -> None:

@@ -21,7 +21,7 @@ from ..formats import signed_range
 from ..network import as_codes
 from . import _compiled
 from .accumulate import post_accumulate, smallest_int
-from .caches import INPUT_CACHE, LRU
+from .caches import INPUT_CACHE, MONOTONE_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
 
 __all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen"]
@@ -269,13 +269,9 @@ def _add_hist(counts: dict[str, np.ndarray], j: int, hist: np.ndarray) -> None:
         counts[name][j] += int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
 
 
-# by the table's identity; each entry holds its table, so that identity cannot be reused while cached
-_MONOTONE = LRU(64)
-
-
 def _monotone(table: np.ndarray) -> bool:
     """Whether the (read-only, shared) activation table never decreases, checked once per table."""
-    held, flag = _MONOTONE.get(id(table), lambda: (table, bool(np.all(table[1:] >= table[:-1]))))
+    held, flag = MONOTONE_CACHE.get(id(table), lambda: (table, bool(np.all(table[1:] >= table[:-1]))))
     return bool(flag) if held is table else bool(np.all(table[1:] >= table[:-1]))
 
 
