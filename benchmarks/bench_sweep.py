@@ -13,11 +13,15 @@ turn, best of ``--repeat``, each run on plans no earlier run used (so no cache
 helps). Wall-clock efficiency needs idle cores: the load average and the CPU share
 the workers actually got (Linux ``/proc``) are printed beside it. Run::
 
-    python benchmarks/bench_sweep.py [--samples 100000] [--repeat 3] [--baseline TREE]
+    python benchmarks/bench_sweep.py [--samples 100000] [--repeat 3] [--baseline TREE] [--phases]
 
 ``--baseline TREE`` also times the numpy path of another source tree in a subprocess (for
 example ``git archive <commit> fxnet_widgets | tar -x -C TREE``: the code before this work),
 the literal "today's plans/s", on the same grid and plans.
+
+``--phases`` also prints where a plan's CPU time goes on the compiled path (one serial sweep,
+each phase's functions wrapped with a CPU-time counter in this process only; phases nest as
+indented, and the compiled loops are counted apart from the Python and numpy around them).
 """
 
 from __future__ import annotations
@@ -139,6 +143,73 @@ def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) ->
 _ONE_THREAD = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 
 
+# (label, module, attribute, depth): the fast path's phases, outermost first
+_PHASES = (
+    ("one plan's record (evaluate_fast)", "fxnet_widgets.core.analysis.search.evaluate", "evaluate_fast", 0),
+    ("guaranteed-safe widths", "fxnet_widgets.core.analysis.search.fast", "safe_acc_widths", 1),
+    ("emulate", "fxnet_widgets.core.analysis.search.fast", "emulate", 1),
+    ("integer network build", "fxnet_widgets.core.kernel.emulation", "build_integer_network", 2),
+    ("layer sums (sums_and_bounds)", "fxnet_widgets.core.kernel.emulation", "sums_and_bounds", 2),
+    ("steps 4-7 (run_layer)", "fxnet_widgets.core.kernel.emulation", "run_layer", 2),
+    ("bucket tables (_coarse)", "fxnet_widgets.core.kernel.evaluate", "_coarse", 3),
+    ("hardware cost", "fxnet_widgets.core.analysis.search.fast", "hardware_cost", 1),
+    ("output error (_error_stats)", "fxnet_widgets.core.analysis.search.fast", "_error_stats", 1),
+)
+_LOOPS = ("dense_sums", "lut_apply", "coarse_apply", "abs_error", "minmax")
+
+
+def phases(net: fw.Network, codes: np.ndarray, grid: dict) -> None:
+    """CPU milliseconds per plan by phase on the compiled path (one serial sweep, functions wrapped)."""
+    import importlib
+
+    from fxnet_widgets.core.kernel import _compiled
+
+    spent: dict[str, float] = {}
+
+    def counted(name: str, f: Any) -> Any:
+        def run(*a: Any, **k: Any) -> Any:
+            t = time.process_time()
+            try:
+                return f(*a, **k)
+            finally:
+                spent[name] = spent.get(name, 0.0) + time.process_time() - t
+
+        return run
+
+    saved_env = os.environ.get("FXNET_KERNEL")
+    os.environ["FXNET_KERNEL"] = "numba"
+    kern = _compiled.kernels()
+    undo: list[tuple[Any, str, Any]] = []
+    for label, mod_name, attr, _depth in _PHASES:
+        mod = importlib.import_module(mod_name)
+        undo.append((mod, attr, getattr(mod, attr)))
+        setattr(mod, attr, counted(label, getattr(mod, attr)))
+    for name in _LOOPS:
+        undo.append((kern, name, getattr(kern, name)))
+        setattr(kern, name, counted(name, getattr(kern, name)))
+    n_plans = int(np.prod([len(v) for v in grid.values()]))
+    try:
+        timed(net, codes, grid, SerialExecutor(), 7)  # new plans: the first run pays any new loop signature
+        spent.clear()
+        _wall, cpu, _ = timed(net, codes, grid, SerialExecutor(), 6)
+    finally:
+        for obj, attr, f in reversed(undo):
+            setattr(obj, attr, f)
+        if saved_env is None:
+            os.environ.pop("FXNET_KERNEL", None)
+        else:
+            os.environ["FXNET_KERNEL"] = saved_env
+    assert cpu is not None
+    print(f"  where a plan's CPU time goes, compiled path (ms per plan; load average {os.getloadavg()[0]:.2f}):")
+    print(f"    whole sweep, per plan                 {1e3 * cpu / n_plans:6.3f}")
+    for label, _m, _a, depth in _PHASES:
+        print(f"    {'  ' * depth}{label:<{38 - 2 * depth}s}{1e3 * spent.get(label, 0.0) / n_plans:6.3f}")
+    loops = sum(spent.get(name, 0.0) for name in _LOOPS)
+    print("    compiled loops in all (" + ", ".join(f"{k} {1e3 * spent.get(k, 0.0) / n_plans:.3f}" for k in _LOOPS)
+          + f"): {1e3 * loops / n_plans:.3f}")  # fmt: skip
+    print(f"    outside the loops: {1e3 * (cpu - loops) / n_plans:.3f}")
+
+
 _BASELINE = """
 import os, sys, time
 import numpy as np
@@ -177,6 +248,7 @@ def main() -> None:
     ap.add_argument("--repeat", type=int, default=3, help="best of N timings (at most 8)")
     ap.add_argument("--baseline", metavar="TREE", help="also time the numpy path of another source tree "
                     "(a checkout of the commit before this work: today's plans/s)")  # fmt: skip
+    ap.add_argument("--phases", action="store_true", help="also print where a plan's CPU time goes (compiled path)")
     args = ap.parse_args()
     if any(os.environ.get(k) != v for k, v in _ONE_THREAD.items()):
         os.execve(sys.executable, [sys.executable, *sys.argv], {**os.environ, **_ONE_THREAD})
@@ -189,6 +261,8 @@ def main() -> None:
     print(f"sweep of {n_plans} distinct plans on {args.samples} samples of a 3-3-1 sigmoid network")
     print(f"  {os.cpu_count()} cores; load average before {load0:.2f}; BLAS threads: 1")
     new_rate = kernel_ratio(net, codes, grid, min(args.repeat, 8))
+    if args.phases:
+        phases(net, codes, grid)
     if args.baseline:
         base = baseline_rate(args.baseline, grid, args.samples, min(args.repeat, 8))
         print(f"  baseline tree {args.baseline} (FXNET_KERNEL=numpy): {base:.1f} plans/s of CPU; "

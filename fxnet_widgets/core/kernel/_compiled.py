@@ -67,6 +67,21 @@ class _Kernels:
                        maxs: np.ndarray) -> None:  # fmt: skip # pragma: no cover
             # x (n_in, N) codes; tabs (n_out, n_in, span) int64 with the offset bias in input 0
             n_out, n_in, n = tabs.shape[0], tabs.shape[1], x.shape[1]
+            if n_in == 3 and n:  # the demo networks' width: one pass, three gathers a sample (measured ~20 % less)
+                x0, x1, x2 = x[0], x[1], x[2]
+                for j in range(n_out):
+                    row = out[j]
+                    t0, t1, t2 = tabs[j, 0], tabs[j, 1], tabs[j, 2]
+                    lo = np.int64(1) << 62
+                    hi = -lo
+                    for i in range(n):
+                        v = t0[np.int64(x0[i]) - off] + t1[np.int64(x1[i]) - off] + t2[np.int64(x2[i]) - off]
+                        row[i] = v
+                        lo = min(lo, v)
+                        hi = max(hi, v)
+                    mins[j] = lo
+                    maxs[j] = hi
+                return
             for j in range(n_out):  # neuron by neuron: contiguous writes, the min/max held in registers
                 row = out[j]
                 t0 = tabs[j, 0]

@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 
 from .. import formats
+from .caches import NARROW_CACHE
 from .layers import IntegerLayer
 
 __all__ = ["post_accumulate", "smallest_int"]
@@ -30,6 +31,15 @@ def smallest_int(lo: int, hi: int) -> type:
         if a <= lo and hi <= b:
             return dt
     return np.int64
+
+
+def _narrow_table(layer: IntegerLayer) -> np.ndarray:
+    """The layer's (read-only, shared) table in the codes' narrowest type, made once per table."""
+    table = layer.table
+    assert table is not None
+    dt = smallest_int(layer.code_min, layer.code_max)  # holds every entry: the codes are the entries
+    held, narrow = NARROW_CACHE.get((id(table), dt), lambda: (table, table.astype(dt)))
+    return narrow if held is table else table.astype(dt)
 
 
 def post_accumulate(layer: IntegerLayer, s: np.ndarray, lo: int | None = None, hi: int | None = None) -> dict[str, Any]:
@@ -85,8 +95,7 @@ def post_accumulate(layer: IntegerLayer, s: np.ndarray, lo: int | None = None, h
             a = np.where(low, ilo, np.where(high, ihi, a))
     if layer.table is not None:
         idx = np.asarray(a) - np.int64(ilo) if ilo != 0 else a  # int64: ilo may not fit a's dtype
-        codes = layer.table[idx]
-        codes = codes.astype(smallest_int(layer.code_min, layer.code_max), copy=False)
+        codes = _narrow_table(layer).take(idx)  # idx is clamped to the address range: in bounds
     else:
         codes = np.asarray(a).astype(smallest_int(ilo, ihi), copy=False)
     return {"acc": s_a, "codes": codes, "acc_overflow": ov, "table_low": low, "table_high": high}

@@ -18,7 +18,7 @@ import numpy as np
 from ..formats import bits_for_range, round_float, signed_range, unsigned_range
 from ..network import Network
 from ..plan import INT_LIMITS, LayerPlan, Plan
-from .caches import QUANT_CACHE, TABLE_CACHE, WEIGHT_CACHE
+from .caches import OUTPUT_CACHE, QUANT_CACHE, TABLE_CACHE, WEIGHT_CACHE
 from .layers import Bounds, CodeFormat, IntegerLayer, IntegerNetwork
 from .tables import TableSpec, build_table
 
@@ -125,6 +125,13 @@ class _Output(NamedTuple):
 
 
 def _output(activation: str, has_table: bool, lp: LayerPlan, acc_frac: int) -> _Output:
+    """Steps 5-7 of one layer (cached by every field they read; not the weight or accumulator fields)."""
+    key = (activation, has_table, lp.out_bits, lp.out_frac, lp.table_bits, lp.table_frac, lp.index_round,
+           lp.table_sample, lp.table_round, acc_frac)  # fmt: skip
+    return OUTPUT_CACHE.get(key, partial(_output_uncached, activation, has_table, lp, acc_frac))
+
+
+def _output_uncached(activation: str, has_table: bool, lp: LayerPlan, acc_frac: int) -> _Output:
     out_lo, out_hi, out_signed = _code_range(activation, lp.out_bits)
     out_frac = lp.resolved_out_frac(activation)
     if has_table:

@@ -11,7 +11,8 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from typing import Any
 
-__all__ = ["LRU", "QUANT_CACHE", "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
+__all__ = ["LRU", "MONOTONE_CACHE", "NARROW_CACHE", "OUTPUT_CACHE", "QUANT_CACHE",
+           "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
            "WEIGHT_CACHE",
            "clear_caches", "cache_stats"]  # fmt: skip
 
@@ -68,10 +69,19 @@ TABLE_CACHE = LRU(256)
 #: one layer's weight codes, raw bias codes and safe widths by (network digest, layer, weight
 #: fields, input format): plans that differ in the accumulator, table or output fields share them
 WEIGHT_CACHE = LRU(256)
+#: one layer's steps 5-7 (shift, address range, table, output codes) by the fields they read
+#: (activation, output and table fields, the accumulator's fraction): a plan's guaranteed-safe
+#: widths and its build read the same parts (a search builds both per plan)
+OUTPUT_CACHE = LRU(256)
+#: per shared activation table (by identity; each entry holds its table, so that identity cannot
+#: be reused while cached): whether it never decreases, and its copy in the codes' narrowest type
+MONOTONE_CACHE = LRU(64)
+NARROW_CACHE = LRU(64)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
           "sums": SUM_CACHE, "table": TABLE_CACHE,
-          "weights": WEIGHT_CACHE}  # fmt: skip
+          "weights": WEIGHT_CACHE, "output": OUTPUT_CACHE, "monotone": MONOTONE_CACHE,
+          "narrow_table": NARROW_CACHE}  # fmt: skip
 
 
 def clear_caches() -> None:

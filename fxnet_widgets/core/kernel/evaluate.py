@@ -21,7 +21,7 @@ from ..formats import signed_range
 from ..network import as_codes
 from . import _compiled
 from .accumulate import post_accumulate, smallest_int
-from .caches import INPUT_CACHE
+from .caches import INPUT_CACHE, MONOTONE_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
 
 __all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen"]
@@ -269,6 +269,12 @@ def _add_hist(counts: dict[str, np.ndarray], j: int, hist: np.ndarray) -> None:
         counts[name][j] += int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
 
 
+def _monotone(table: np.ndarray) -> bool:
+    """Whether the (read-only, shared) activation table never decreases, checked once per table."""
+    held, flag = MONOTONE_CACHE.get(id(table), lambda: (table, bool(np.all(table[1:] >= table[:-1]))))
+    return bool(flag) if held is table else bool(np.all(table[1:] >= table[:-1]))
+
+
 def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1: int, row: np.ndarray,
             counts: dict[str, np.ndarray]) -> bool:  # fmt: skip
     """Steps 4-7 of neuron ``j`` through bucket tables (compiled; False: not applicable, nothing done).
@@ -280,7 +286,7 @@ def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1:
     lo = layer.sum_min[j]
     alo, ahi = signed_range(layer.plan.acc_bits)
     table = layer.table
-    if lo + m0 < alo or lo + m1 > ahi or (table is not None and not bool(np.all(table[1:] >= table[:-1]))):
+    if lo + m0 < alo or lo + m1 > ahi or (table is not None and not _monotone(table)):
         return False
     n = sp.shape[0]
     b = ((m1 - m0 + 1) // min(max(n // 8, 1024), 1 << 16)).bit_length()  # bucket width 2**b

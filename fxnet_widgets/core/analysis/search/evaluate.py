@@ -12,7 +12,7 @@ from __future__ import annotations
 import concurrent.futures as cf
 import json
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -46,12 +46,15 @@ class PlanTask:
     settings : the grid values that made the plan, ``((field, value), ...)``
     plan_doc : the plan document (:meth:`Plan.to_dict`)
     safe_acc : set every ``acc_bits`` to the guaranteed-safe width before evaluating
+    plan : the checked :class:`Plan` of ``plan_doc`` when the driver has it (the fast path then
+        does not read and check the document again), else None
     """
 
     index: int
     settings: tuple[tuple[str, Any], ...]
     plan_doc: dict[str, Any]
     safe_acc: bool = False
+    plan: Plan | None = field(default=None, compare=False)
 
 
 # ---------------------------------------------------------------------------------
@@ -121,8 +124,8 @@ def _run_chunk(
     _compiled.load_for(prep.n)  # many plans on the same data: the compiled loops pay for their import
     if _compiled.use_compiled(prep.n):  # the fast path (same records; FXNET_KERNEL=numpy: the reference)
         return [
-            evaluate_fast(net, prep, labels, t.index, t.settings, Plan.from_dict(t.plan_doc), t.safe_acc, cost_key,
-                          options)
+            evaluate_fast(net, prep, labels, t.index, t.settings,
+                          Plan.from_dict(t.plan_doc) if t.plan is None else t.plan, t.safe_acc, cost_key, options)
             for t in tasks
         ]  # fmt: skip
     return [_evaluate_one(net, prep, labels, t, cost_key, options) for t in tasks]
@@ -231,7 +234,7 @@ def evaluate_plans(
     check_cost_key(cost)
     opts = check_cost_options(cost_options)
     flat, lab = prepare_data(network, codes, labels)
-    tasks = [PlanTask(i, (), p.to_dict()) for i, p in enumerate(plans)]
+    tasks = [PlanTask(i, (), p.to_dict(), plan=p) for i, p in enumerate(plans)]
     with Runner(executor, len(tasks) * flat.shape[0]) as runner:
         return evaluate(runner, network, flat, lab, tasks, cost, opts, progress)
 

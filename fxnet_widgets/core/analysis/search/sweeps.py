@@ -100,7 +100,7 @@ def sweep(
         except ValueError as exc:
             refused.append(SweepRecord(i, settings, base, None, cost, error=str(exc)))
             continue
-        tasks.append(PlanTask(i, settings, plan.to_dict(), derive))
+        tasks.append(PlanTask(i, settings, plan.to_dict(), derive, plan))
     with Runner(executor, len(tasks) * flat.shape[0]) as runner:
         records = evaluate(runner, network, flat, lab, tasks, cost, opts, progress)
     if refining is not None:

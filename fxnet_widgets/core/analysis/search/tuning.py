@@ -244,7 +244,7 @@ def tune(
 
         def run(plans: list[Plan]) -> list[SweepRecord]:
             todo = [p for p in dict.fromkeys(plans) if p not in seen]
-            tasks = [PlanTask(len(records) + i, (), p.to_dict()) for i, p in enumerate(todo)]
+            tasks = [PlanTask(len(records) + i, (), p.to_dict(), plan=p) for i, p in enumerate(todo)]
             got = evaluate(runner, network, flat, lab, tasks, cost, opts, progress, chunks_per_worker=1)
             for p, r in zip(todo, got):
                 seen[p] = r
