@@ -88,12 +88,18 @@ def scatter_png(
     if current is not None:
         a, b = px(*current)
         dr.polygon([(a, b - 7), (a + 7, b), (a, b + 7), (a - 7, b)], outline=_INK, fill=(255, 255, 255))
-    legend = [(c, k) for k, c in CLASS_COLOURS.items()] + [(_FRONT, "Pareto front"), (_PATH, "tune path"),
-                                                          (_INK, "explorer's plan")]  # fmt: skip
-    for k, (colour, text) in enumerate(legend):
-        yy = top + 6 + 16 * k
-        dr.rectangle([w - right + 10, yy, w - right + 20, yy + 10], fill=colour)
-        dr.text((w - right + 26, yy + 5), text, fill=_INK, font=font, anchor="lm")
+    # the legend draws each mark as the plot does: dots, lines, the white diamond
+    legend = [("dot", c, k) for k, c in CLASS_COLOURS.items()] + [
+        ("line", _FRONT, "Pareto front"), ("line", _PATH, "tune path"), ("diamond", _INK, "explorer's plan")]
+    for k, (mark, colour, text) in enumerate(legend):
+        a, b = w - right + 15, top + 11 + 16 * k
+        if mark == "dot":
+            dr.ellipse([a - 3, b - 3, a + 3, b + 3], fill=colour)
+        elif mark == "line":
+            dr.line([(a - 6, b), (a + 6, b)], fill=colour, width=2)
+        else:
+            dr.polygon([(a, b - 6), (a + 6, b), (a, b + 6), (a - 6, b)], outline=colour, fill=(255, 255, 255))
+        dr.text((a + 11, b), text, fill=_INK, font=font, anchor="lm")
     buf = io.BytesIO()
     im.save(buf, format="PNG", compress_level=6)
     return buf.getvalue()
