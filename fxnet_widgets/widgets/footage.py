@@ -229,8 +229,8 @@ class FootagePanel(w.VBox):
             self.differ_line.x, self.differ_line.y = x, differ
             self.events_line.x, self.events_line.y = x, events
             self.points.x, self.points.y = x, differ
-            self.ys.max = top * 1.05
-            self.cursor.y = np.array([0, top * 1.05], np.float32)
+            self.ys.max = top * 1.3  # headroom: the legend (top left) sits above the lines, not on them
+            self.cursor.y = np.array([0, top * 1.3], np.float32)
         self.progress.value = self.progress.max
         self._say()
         self._show_frame()
