@@ -115,7 +115,11 @@ def named_amd(js: str, name: str, source: str = "bundle") -> str:
 @lru_cache(maxsize=4)
 def _wheel_module(parts: tuple[str, ...], name: str, mtime: float) -> str:
     path = find_share_file(parts, f"{name}'s JavaScript bundle")
-    return inline_script(named_amd(path.read_text(encoding="utf-8"), name, str(path)), f"{name} (from the wheel)")
+    # only where require.js loaded: a CDN page opened with no network skips the module (its static
+    # pictures stay) instead of logging "define is not defined"
+    js = 'if (typeof define === "function" && define.amd) {\n' + named_amd(path.read_text(encoding="utf-8"),
+                                                                             name, str(path)) + "\n}"  # fmt: skip
+    return inline_script(js, f"{name} (from the wheel)")
 
 
 def _wheel_script(parts: tuple[str, ...], name: str) -> tuple[str, str]:

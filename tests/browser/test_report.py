@@ -85,3 +85,20 @@ def test_report_without_javascript_has_the_tables_and_pictures(offline_report, n
     assert page.locator("noscript").count() > 0
     page.screenshot(path=str(artifacts / "report-static.png"), full_page=True)
     assert log.blocked == [], f"the offline report asked the network for {log.blocked}"
+
+
+def test_cdn_report_opened_with_no_network_throws_nothing(tmp_path: Path, new_page):
+    # the default report loads require.js and the HTML manager from CDNs; opened with no network those
+    # requests fail (blocked here), and the inlined bqplot module must then be skipped, not throw
+    # "define is not defined": no uncaught page error, and the static pictures are there
+    out = tmp_path / "cdn.html"
+    argv = [sys.executable, "-m", "fxnet_widgets.cli", "report", str(ASSETS / "network.json"),
+            str(ASSETS / "plan.json"), str(ASSETS / "scene-test.png"), "-o", str(out)]  # fmt: skip
+    done = subprocess.run(argv, capture_output=True, text=True, timeout=300, cwd=ROOT)
+    assert done.returncode == 0, f"fxnet report failed ({done.returncode}): {done.stderr[-2000:]}"
+    page, log = new_page()
+    page.goto(out.as_uri(), wait_until="load", timeout=60_000)
+    assert log.blocked, "the CDN report should have asked for its scripts"
+    assert log.page_errors == [], "uncaught page errors:\n" + "\n".join(log.page_errors)
+    img = page.locator("section#preview figure img").first
+    assert (img.get_attribute("src") or "").startswith("data:image/png;base64,")
