@@ -63,16 +63,17 @@ def dsp_count(target: str, a_bits: int, b_bits: int, y_bits: int) -> int:
     return -(-a // amax) * -(-b // bmax)
 
 
-def _bram(entries: int, width: int, kinds: tuple[tuple[float, int, tuple[tuple[int, int], ...]], ...],
+def _bram(entries: int, width: int, cols: list[int], kinds: tuple[tuple[float, int, tuple[tuple[int, int], ...]], ...],
           reach: np.ndarray) -> tuple[float, int, int]:  # fmt: skip
     """``(cost, blocks kept, reachable words per row)`` of a ROM of ``entries`` x ``width`` bits in block RAM.
 
     As ``memory_libmap`` lays a ROM out (seen in Yosys 0.23 netlists: block names, shapes
     and the blocks removed): for a block of ``d x w``, ``entries / d`` words side by side
     form one row of a ``d``-deep memory (the top address bits choose the word), cut into
-    blocks of ``w`` bits; the cheapest layout wins (ties: the deeper block). A block that
-    holds no bit of a word the address can reach is removed. Blocks kept are counted in
-    the target's unit (a RAMB36 as two RAMB18).
+    blocks of ``w`` bits; the cheapest layout wins (ties: the deeper block). The layout is
+    of the whole word (``width``: the memory keeps the bits nothing reads). A block that
+    holds no read bit (``cols``) of a word the address can reach is removed. Blocks kept are
+    counted in the target's unit (a RAMB36 as two RAMB18).
     """
     best = None
     for cost, unit, shapes in kinds:
@@ -82,10 +83,8 @@ def _bram(entries: int, width: int, kinds: tuple[tuple[float, int, tuple[tuple[i
                 best = (cost * n, d, w, unit)
     assert best is not None
     total, d, w, unit = best
-    kept: set[int] = set()
     words = set((reach // d).tolist()) if entries > d else {0}
-    for q in words:
-        kept.update(range(q * width // w, (q * width + width - 1) // w + 1))
+    kept = {(q * width + b) // w for q in words for b in cols}
     return total, unit * len(kept), len(words)
 
 

@@ -14,7 +14,9 @@ is the same in every word the address can reach is a constant.
 Each table ROM is a block RAM or logic by the rule of Yosys's ``memory_libmap``: a
 block RAM when its read is registered and the cheapest block layout (:func:`.mapping._bram`,
 block kinds and costs in :data:`ROM_RULES`) costs less than its bits at the soft-logic
-cost of a ROM bit (:data:`LOGIC_COST_ROM`). Of a block RAM, the blocks that hold no bit
+cost of a ROM bit (:data:`LOGIC_COST_ROM`), both for the table's whole word width (the
+memory keeps every word bit, read or not: seen in the RTLIL before ``memory_libmap``,
+``RD_DATA {unused[8:6], code[5:0]}``). Of a block RAM, the blocks that hold no read bit
 of a word the address can reach are removed; Yosys tells the words apart by the address
 nets (the copies of a sign bit are one net; a register of its inverse is another). The
 output select of the words of a block row costs LUTs of the family's multiplexer.
@@ -175,7 +177,9 @@ class _Walk:
                 return ([0] * sh + src)[:n]
             key: tuple[Any, ...] = ("mul", c, tuple(src))
             tz = next((i for i, v in enumerate(src) if v != 0), n) + sh
-            return [0 if b < tz else N.new(key + (b,), ("mul", c), tuple(src[: b + 1])) for b in range(n)]
+            # bit b of x * c reads x's bits up to b - sh (a truncated product leaves the top of x unread,
+            # as Yosys's ``wreduce`` finds)
+            return [0 if b < tz else N.new(key + (b,), ("mul", c), tuple(src[: b - sh + 1])) for b in range(n)]
         if op == "add":
             x, y = sorted((tuple(self.of(a[0], n)), tuple(self.of(a[1], n))))
             kx, ky = _known(x, True), _known(y, True)
@@ -343,8 +347,9 @@ def structure(r: Resolved, target: str) -> Structure:  # noqa: C901 - the counti
             _, t, reach = roms[id(s)]
             cols = [b for b, n in enumerate(W.bits[id(s)]) if n in live]
             entries = t.shape[0]
-            cost, kept, words = _bram(entries, len(cols), kinds, _reachable(W.cell[id(s)][1], N, False))
-            if r.registered(s) and entries * len(cols) * logic_cost > cost:
+            # the memory keeps the table's whole word (Yosys does not narrow a memory to the bits read)
+            cost, kept, words = _bram(entries, t.shape[1], cols, kinds, _reachable(W.cell[id(s)][1], N, False))
+            if r.registered(s) and entries * t.shape[1] * logic_cost > cost:
                 brams += kept
                 bram_mux += len(cols) * _mux_luts(words, k)
                 bram_regs.update(bits)

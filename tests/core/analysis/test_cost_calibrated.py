@@ -38,19 +38,28 @@ def test_block_ram_layout_follows_the_netlists_yosys_writes():
     every = np.arange(16384)
     # Yosys 0.23 synth_xilinx, a 16384 x 12 ROM: 11 RAMB18E1 with READ_WIDTH_A 9 (2048 x 9 blocks,
     # eight 12-bit words side by side in a 96-bit row); 16384x1 blocks would take 12
-    assert _bram(16384, 12, X7, every)[:2] == (11 * 129, 11)
+    assert _bram(16384, 12, list(range(12)), X7, every)[:2] == (11 * 129, 11)
     # ... a 16384 x 10 ROM whose address has bit 13 free and bits 12..10 one net (a sign bit and its
     # copies): blocks l1_n0_code_table.0.0 .. .0.8, of which .0.2 and .0.6 were removed (no word reached)
     reach = np.array([a for a in every if (a >> 10) & 7 in (0, 7)])
-    assert _bram(16384, 10, X7, reach)[:2] == (9 * 129, 7)
+    assert _bram(16384, 10, list(range(10)), X7, reach)[:2] == (9 * 129, 7)
     # ... a 16384 x 11 ROM: five RAMB36E1 of 4096 x 9 (cost 5 x 257 = 1285 < 10 RAMB18 at 1290), ten RAMB18
     # counted; its address reaches every 4096-word slice, so none is removed
-    assert _bram(16384, 11, X7, np.array([a for a in every if (a >> 11) & 3 in (0, 3)]))[:2] == (5 * 257, 10)
+    slices = np.array([a for a in every if (a >> 11) & 3 in (0, 3)])
+    assert _bram(16384, 11, list(range(11)), X7, slices)[:2] == (5 * 257, 10)
     # Yosys 0.23 synth_ice40, a 16384 x 11 ROM: blocks numbered .0.0 .. .0.43 (44 SB_RAM40_4K, eight
     # 11-bit words in an 88-bit row of 2048 x 2 blocks), not 8 x 6 = 48
-    assert _bram(16384, 11, ICE40, every)[0] == 44 * 64
+    assert _bram(16384, 11, list(range(11)), ICE40, every)[0] == 44 * 64
     # a 1024 x 12 ROM: three 1024 x 4 blocks (iCE40 TN1250 shapes; from memory)
-    assert _bram(1024, 12, ICE40, np.arange(1024))[:2] == (3 * 64, 3)
+    assert _bram(1024, 12, list(range(12)), ICE40, np.arange(1024))[:2] == (3 * 64, 3)
+    # Yosys 0.23 keeps a memory's whole word though only its low bits are read (the RTLIL before
+    # memory_libmap: RD_DATA {unused[8:6], code[5:0]}): a 16384 x 9 ROM read in 6 bits is laid out as
+    # 9-bit words, four RAMB36E1 of 4096 x 9 (cost 4 x 257 < 8 RAMB18 at 8 x 129), each block holding
+    # read bits of its own word, so all four stay (eight RAMB18); a 6-bit word would pack into three
+    assert _bram(16384, 9, list(range(6)), X7, every)[:2] == (4 * 257, 8)
+    # ... and a block holding only unread bits of the reached words goes: 1024 x 12 on iCE40 in three
+    # 1024 x 4 blocks, the low 4 bits read, leaves one
+    assert _bram(1024, 12, list(range(4)), ICE40, np.arange(1024))[:2] == (3 * 64, 1)
 
 
 def test_dsp_rule_of_mul2dsp():
