@@ -6,7 +6,9 @@ Pure functions (no widgets): the panel (:mod:`.hardware`) and the report
 
 from __future__ import annotations
 
+import os
 import shutil
+import time
 from dataclasses import dataclass
 
 from ..core.synth import SynthesisResult, target
@@ -58,10 +60,25 @@ def bar_html(share: float | None, over: bool, width: int = 120) -> str:
             f"</div> {share:.1f} %")  # fmt: skip
 
 
+#: seconds a PATH look-up is reused: the panel redraws on every control change, and a look-up
+#: stats each PATH directory (about 0.1 ms a redraw here); a tool installed meanwhile shows this soon
+_LOOKUP_SECONDS = 2.0
+_FOUND: dict[tuple[str, str], tuple[float, bool]] = {}
+
+
+def _on_path(name: str) -> bool:
+    key, now = (name, os.environ.get("PATH", "")), time.monotonic()
+    hit = _FOUND.get(key)
+    if hit is None or now - hit[0] > _LOOKUP_SECONDS:
+        hit = _FOUND[key] = (now, shutil.which(name) is not None)
+    return hit[1]
+
+
 def missing_tools(target_name: str) -> list[str]:
-    """The tools a synthesis for ``target_name`` needs that are not on PATH (a PATH look-up, no tool run)."""
+    """The tools a synthesis for ``target_name`` needs that are not on PATH (a PATH look-up, no tool run;
+    reused for a moment under the same PATH)."""
     needed = ["yosys"] + (["nextpnr-ice40"] if target(target_name).places else [])
-    return [name for name in needed if shutil.which(name) is None]
+    return [name for name in needed if not _on_path(name)]
 
 
 def tools_line(target_name: str) -> str:

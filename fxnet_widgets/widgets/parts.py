@@ -46,7 +46,7 @@ def _prepared(codes: np.ndarray, bits: int, n_in: int) -> np.ndarray | Prepared:
         return hit[1]
     prep = prepare(codes, bits, n_in)
     _PREPARED[key] = (weakref.ref(codes), prep)
-    while len(_PREPARED) > 4:
+    while len(_PREPARED) > 8:  # a session's image, samples, cube and recent slice positions, and another's
         _PREPARED.popitem(last=False)
     return prep
 
@@ -79,19 +79,42 @@ def samples_part(data: SessionData, plan: Plan) -> SampleResult:
     return SampleResult(data.samples, data.labels, emu.decisions, emu.float_decisions, emu)
 
 
-def slices_part(data: SessionData, plan: Plan, pos: tuple[int, int, int],
-                sample_decisions: np.ndarray | None) -> tuple[SliceResult, ...]:  # fmt: skip
-    """The three slices at ``pos``; without labels the samples are coloured by ``sample_decisions``."""
-    c = data.slice_codes
+_STACKS: OrderedDict[tuple[bytes, tuple[int, int, int], int], np.ndarray] = OrderedDict()
+
+
+def _slice_stack(c: np.ndarray, pos: tuple[int, int, int], bits: int) -> np.ndarray:
+    """The three slices' input codes, stacked (3n x n x 3), read-only: one array per position.
+
+    A plan change keeps the position, so the same array comes back and the kernel's decomposition
+    of it is reused (:func:`_prepared`) instead of hashing and splitting the stack again.
+    """
+    key = (c.tobytes(), pos, bits)
+    stack = _STACKS.get(key)
+    if stack is not None:
+        _STACKS.move_to_end(key)
+        return stack
     n = c.size
-    dt = np.uint8 if data.network.input_bits <= 8 else np.uint16
-    stack = np.empty((3 * n, n, 3), dtype=dt)
+    stack = np.empty((3 * n, n, 3), dtype=np.uint8 if bits <= 8 else np.uint16)
     for si, (_, xi, yi, fi) in enumerate(SLICES):
         block = stack[si * n : (si + 1) * n]
         block[..., xi] = c[None, :]
         block[..., yi] = c[:, None]
         block[..., fi] = pos[fi]
-    emu = _emulate(data, plan, stack)
+    stack.setflags(write=False)
+    _STACKS[key] = stack
+    while len(_STACKS) > 4:
+        _STACKS.popitem(last=False)
+    return stack
+
+
+def slices_part(data: SessionData, plan: Plan, pos: tuple[int, int, int],
+                sample_decisions: np.ndarray | None) -> tuple[SliceResult, ...]:  # fmt: skip
+    """The three slices at ``pos``; without labels the samples are coloured by ``sample_decisions``."""
+    c = data.slice_codes
+    n = c.size
+    net = data.network
+    emu = _emulate(data, plan, _prepared(_slice_stack(c, tuple(int(v) for v in pos), net.input_bits),
+                                         net.input_bits, net.n_in))  # fmt: skip
     fx, fl = emu.decisions, emu.float_decisions
     tol = max(1, int(c[1] - c[0]) * 4) if n > 1 else 1
     out = []

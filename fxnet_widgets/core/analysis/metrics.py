@@ -139,9 +139,11 @@ def pair_counts(rows: np.ndarray, cols: np.ndarray, k: int) -> np.ndarray:
     [[1, 0], [1, 2]]
     """
     rows, cols = np.asarray(rows).reshape(-1), np.asarray(cols).reshape(-1)
-    if k == 2 and rows.dtype.kind in "bu" and cols.dtype.kind in "bu":  # two classes: three counts, no pair index
+    if k == 2 and rows.dtype.kind in "biu" and cols.dtype.kind in "biu":  # two classes (0 and 1): three counts,
+        # no pair index (an int16 label array included: no int64 copy of it)
         n, r1, c1 = rows.shape[0], int(np.count_nonzero(rows)), int(np.count_nonzero(cols))
-        both = int(np.count_nonzero(rows & cols))
+        both = sum(int(np.count_nonzero(rows[a : a + _CHUNK] & cols[a : a + _CHUNK]))
+                   for a in range(0, n, _CHUNK))  # fmt: skip
         return np.array([[n - r1 - c1 + both, c1 - both], [r1 - both, both]], dtype=np.int64)
     out = np.zeros(k * k, dtype=np.int64)
     for a in range(0, rows.shape[0], _CHUNK):
