@@ -73,13 +73,23 @@ class StatusLinePanel(w.HTML):
             raise TypeError(f"session must be a Session, not {type(session).__name__}")
         super().__init__(**kwargs)
         self.session = session
+        self._text: str | None = None
         self.add_class("fxnet-status")
+        # drawn when the update number moves (after every view has the new result), not as a view: the
+        # line then never shows a new result beside the previous update's number
         session.observe(lambda _c: self._show(), names=["error", "view_errors", "version"])
-        session.add_view("status", lambda _r: self._show())
+        if session.last_result is not None:
+            self._show()
 
     @property
     def text(self) -> str:
-        """The line as plain text (deterministic)."""
+        """The line as plain text, as drawn (deterministic)."""
+        if self._text is None:
+            self._show()
+        assert self._text is not None
+        return self._text
+
+    def _line(self) -> str:
         s = self.session
         parts = []
         if s.error:
@@ -95,9 +105,10 @@ class StatusLinePanel(w.HTML):
         s = self.session
         bad = bool(s.error or s.view_errors)
         colour = "#b00020" if bad else "#2d6a2d"
+        self._text = self._line()
         self.value = (
             f'<span style="color:{colour};font-family:monospace" title="{html.escape(WIDTHS_KEY)}">'
-            f"{html.escape(self.text)}</span>"
+            f"{html.escape(self._text)}</span>"
         )
 
 
