@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import re
 
-from fxnet_widgets.widgets.status import plan_widths
 from fxnet_widgets.widgets import Session, StatusLinePanel
+from fxnet_widgets.widgets.status import plan_widths
 
 
 def test_the_line_for_a_table_network_names_table_clamps(fruit_net, fruit_plan, belt_image):
