@@ -18,6 +18,7 @@ import numpy as np
 
 from ..core.analysis.metrics import error_metrics, pair_counts
 from ..core.kernel import Emulation, _compiled, emulate
+from ..core.kernel.caches import LRU
 from ..core.kernel.evaluate import Prepared, prepare
 from ..core.plan import Plan
 from ..render.raster import DownscaledImage
@@ -46,7 +47,7 @@ def _prepared(codes: np.ndarray, bits: int, n_in: int) -> np.ndarray | Prepared:
         return hit[1]
     prep = prepare(codes, bits, n_in)
     _PREPARED[key] = (weakref.ref(codes), prep)
-    while len(_PREPARED) > 8:  # a session's image, samples, cube and recent slice positions, and another's
+    while len(_PREPARED) > 4:
         _PREPARED.popitem(last=False)
     return prep
 
@@ -79,32 +80,28 @@ def samples_part(data: SessionData, plan: Plan) -> SampleResult:
     return SampleResult(data.samples, data.labels, emu.decisions, emu.float_decisions, emu)
 
 
-_STACKS: OrderedDict[tuple[bytes, tuple[int, int, int], int], np.ndarray] = OrderedDict()
+#: the slices' input codes by (grid codes, position, input bits, inputs), decomposed for the kernel
+_SLICE_INPUTS = LRU(4)
 
 
-def _slice_stack(c: np.ndarray, pos: tuple[int, int, int], bits: int) -> np.ndarray:
-    """The three slices' input codes, stacked (3n x n x 3), read-only: one array per position.
+def _slice_inputs(c: np.ndarray, pos: tuple[int, int, int], bits: int, n_in: int) -> Prepared:
+    """The three slices' input codes, stacked (3n x n x 3) and decomposed, once per position.
 
-    A plan change keeps the position, so the same array comes back and the kernel's decomposition
-    of it is reused (:func:`_prepared`) instead of hashing and splitting the stack again.
+    A plan change keeps the position, so the kernel's decomposition of the stack is reused
+    instead of building, hashing and splitting the stack again.
     """
-    key = (c.tobytes(), pos, bits)
-    stack = _STACKS.get(key)
-    if stack is not None:
-        _STACKS.move_to_end(key)
-        return stack
-    n = c.size
-    stack = np.empty((3 * n, n, 3), dtype=np.uint8 if bits <= 8 else np.uint16)
-    for si, (_, xi, yi, fi) in enumerate(SLICES):
-        block = stack[si * n : (si + 1) * n]
-        block[..., xi] = c[None, :]
-        block[..., yi] = c[:, None]
-        block[..., fi] = pos[fi]
-    stack.setflags(write=False)
-    _STACKS[key] = stack
-    while len(_STACKS) > 4:
-        _STACKS.popitem(last=False)
-    return stack
+
+    def make() -> Prepared:
+        n = c.size
+        stack = np.empty((3 * n, n, 3), dtype=np.uint8 if bits <= 8 else np.uint16)
+        for si, (_, xi, yi, fi) in enumerate(SLICES):
+            block = stack[si * n : (si + 1) * n]
+            block[..., xi] = c[None, :]
+            block[..., yi] = c[:, None]
+            block[..., fi] = pos[fi]
+        return prepare(stack, bits, n_in)
+
+    return _SLICE_INPUTS.get((c.tobytes(), pos, bits, n_in), make)
 
 
 def slices_part(data: SessionData, plan: Plan, pos: tuple[int, int, int],
@@ -113,8 +110,7 @@ def slices_part(data: SessionData, plan: Plan, pos: tuple[int, int, int],
     c = data.slice_codes
     n = c.size
     net = data.network
-    emu = _emulate(data, plan, _prepared(_slice_stack(c, tuple(int(v) for v in pos), net.input_bits),
-                                         net.input_bits, net.n_in))  # fmt: skip
+    emu = _emulate(data, plan, _slice_inputs(c, tuple(int(v) for v in pos), net.input_bits, net.n_in))
     fx, fl = emu.decisions, emu.float_decisions
     tol = max(1, int(c[1] - c[0]) * 4) if n > 1 else 1
     out = []
