@@ -91,7 +91,7 @@ x = np.zeros((3, 4), np.uint8); tabs = np.zeros((1, 3, 256), np.int64); o = np.e
 k.dense_sums(x, 0, tabs, o, np.empty(1, np.int64), np.empty(1, np.int64))
 sp = np.zeros(4, np.int32); c = np.zeros(4, np.uint8); e = np.zeros(4, np.uint8); h = np.zeros(8, np.int64)
 k.lut_apply(sp, 0, c, e, c, h)
-k.coarse_apply(sp, 0, 0, 1, c, e, c, h, np.empty(4, np.int64))
+k.stepped_apply(sp, 0, 1, c, e, np.zeros(4, np.int32), np.zeros((1, 2), np.uint8), np.zeros((1, 2), np.uint8), c, h)
 k.minmax(sp)
 k.abs_error(c, 0, np.zeros(256), np.zeros(4), np.empty(4))
 print(t - t0, time.perf_counter() - t)
@@ -145,7 +145,12 @@ def kernel_ratio(net: fw.Network, codes: np.ndarray, grid: dict, repeat: int) ->
 # nothing from a second thread, whose spinning counted as this process's CPU time (measured
 # here: 156 % of one core for a serial sweep) and slowed the other worker. The script restarts
 # itself with these set (pool workers inherit them).
-_ONE_THREAD = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
+# Fixed glibc malloc thresholds too: glibc moves its mmap threshold with the sizes freed so far,
+# so whether a plan's 100,000-sample temporaries come back as fresh pages (a page fault every
+# 4 KiB) depended on what ran before: the same numpy path measured 597 and 800 plans/s in one
+# hour here, by the other path's allocations alone. Pinned, both paths get warm heap memory.
+_ONE_THREAD = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1",
+               "MALLOC_MMAP_THRESHOLD_": "33554432", "MALLOC_TRIM_THRESHOLD_": "268435456"}
 
 
 # (label, module, attribute, depth): the fast path's phases, outermost first
@@ -156,11 +161,11 @@ _PHASES = (
     ("integer network build", "fxnet_widgets.core.kernel.emulation", "build_integer_network", 2),
     ("layer sums (sums_and_bounds)", "fxnet_widgets.core.kernel.emulation", "sums_and_bounds", 2),
     ("steps 4-7 (run_layer)", "fxnet_widgets.core.kernel.emulation", "run_layer", 2),
-    ("bucket tables (_coarse)", "fxnet_widgets.core.kernel.evaluate", "_coarse", 3),
+    ("bucketed steps 4-7 (stepped)", "fxnet_widgets.core.kernel.evaluate", "stepped", 3),
     ("hardware cost", "fxnet_widgets.core.analysis.search.fast", "hardware_cost", 1),
     ("output error (_error_stats)", "fxnet_widgets.core.analysis.search.fast", "_error_stats", 1),
 )
-_LOOPS = ("dense_sums", "lut_apply", "coarse_apply", "abs_error", "minmax")
+_LOOPS = ("dense_sums", "lut_apply", "stepped_apply", "abs_error", "minmax")
 
 
 def phases(net: fw.Network, codes: np.ndarray, grid: dict) -> None:
@@ -264,7 +269,8 @@ def main() -> None:
     warm = {"table_bits": [15, 16, 17, 18]}  # plans no timed run uses
     load0 = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"sweep of {n_plans} distinct plans on {args.samples} samples of a 3-3-1 sigmoid network")
-    print(f"  {os.cpu_count()} cores; load average before {load0:.2f}; BLAS threads: 1")
+    print(f"  {os.cpu_count()} cores; load average before {load0:.2f}; BLAS threads: 1; "
+          "malloc thresholds pinned (MALLOC_MMAP_THRESHOLD_=32 MiB)")
     new_rate = kernel_ratio(net, codes, grid, min(args.repeat, 8))
     if args.phases:
         phases(net, codes, grid)

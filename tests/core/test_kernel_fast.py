@@ -99,8 +99,9 @@ def test_prepared_codes_give_the_same_result_and_are_checked():
                                           table_frac=5, out_bits=8), prep)  # fmt: skip
 
 
-@pytest.mark.parametrize("index_round", ["floor", "half-even", "trunc"])
-def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round):
+@pytest.mark.parametrize("expanded", [True, False])
+@pytest.mark.parametrize("index_round", ["floor", "half-even", "trunc", "half-up", "half-away"])
+def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round, expanded):
     # wide sums (weight_frac 8) and a safe accumulator: steps 4-7 are monotone in the sum, so the
     # compiled path reads codes from buckets of sums; a narrow table saturates (table_low/high)
     rng = np.random.default_rng(9)
@@ -110,12 +111,18 @@ def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round)
     codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
     plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=30, index_round=index_round,
                            table_bits=7, table_frac=4, out_bits=8)  # fmt: skip
-    calls = []
-    real = _compiled.kernels().coarse_apply
-    monkeypatch.setattr(_compiled.kernels(), "coarse_apply", lambda *a: calls.append(1) or real(*a))
+    from fxnet_widgets.core.kernel import evaluate as kev
+
+    calls, reads = [], []
+    real, read = kev.stepped, _compiled.kernels().stepped_apply
+    monkeypatch.setattr(kev, "stepped", lambda *a: calls.append(1) or real(*a))
+    monkeypatch.setattr(_compiled.kernels(), "stepped_apply", lambda *a: reads.append(1) or read(*a))
+    if not expanded:  # the tables read by buckets (a layer whose sums span more than can be expanded)
+        monkeypatch.setattr(kev, "_EXPAND_MAX", 0)
     ref = _run(net, plan, codes, "numpy")
     fast = _run(net, plan, codes, "compiled")
     assert calls, "the bucket path must have run"
+    assert bool(reads) != expanded
     assert fast == ref
     assert sum(sum(e["table_high"]) + sum(e["table_low"]) for e in fast["events"]) > 0
     # against the contract on Python ints, on a slice
@@ -124,17 +131,45 @@ def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round)
         assert fast["codes"][li][:200] == L["codes"]
 
 
-def test_bucket_path_resumes_when_its_step_list_is_full(monkeypatch):
-    # a step list of 7 samples: the loop must stop and resume many times and still match numpy
-    from fxnet_widgets.core.kernel import evaluate as kev
+def _expanded(t, span):
+    """The per-sum codes and event bits a :class:`Stepped` table stands for, over ``span`` sums."""
+    d = np.arange(span)
+    q = d >> t.b
+    codes, ev = t.codes_q[q].astype(np.int64), t.ev_q[q].astype(np.int64)
+    inside = ev & 128 != 0
+    r, low = t.slot[q[inside]], d[inside] & ((1 << t.b) - 1)
+    codes[inside] = t.exact_codes[r, low]
+    ev[inside] = t.exact_ev[r, low]
+    return codes, ev
 
-    monkeypatch.setattr(kev, "_MIXED_CHUNK", 7)
-    rng = np.random.default_rng(4)
-    net = fw.Network.from_layers([(rng.normal(0, 4, (2, 3)), rng.normal(0, 1, 2), "sigmoid")])
-    codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
-    plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=30, table_bits=8, table_frac=5, out_bits=8)
-    calls = []
-    real = _compiled.kernels().coarse_apply
-    monkeypatch.setattr(_compiled.kernels(), "coarse_apply", lambda *a: calls.append(1) or real(*a))
-    assert _run(net, plan, codes, "compiled") == _run(net, plan, codes, "numpy")
-    assert len(calls) > 2 * len(net.layers[0].bias), "the loop must have resumed"
+
+@settings(max_examples=300, deadline=None)
+@given(st.data())
+def test_stepped_table_equals_steps_4_to_7_on_every_sum(data):
+    # the bucketed evaluation (post_accumulate on bucket starts and on the sums of buckets with a
+    # step inside) must give, for every sum of the domain, the code and events of post_accumulate
+    # on that sum (the contract's steps 4-7, :mod:`formats` rounding), for every mode drawn
+    from fxnet_widgets.core.kernel import accumulate, build
+    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel.layers import DATA_EVENTS
+
+    doc, plans, _bits, _n_in = draw_network_and_plan(data.draw, max_bits=9)
+    net, plan = fw.Network.from_dict(doc), fw.Plan.from_dict({"layers": plans})
+    layer = build.build_integer_network(net, plan).layers[data.draw(st.integers(0, len(plans) - 1))]
+    alo, ahi = -(1 << (layer.plan.acc_bits - 1)), (1 << (layer.plan.acc_bits - 1)) - 1
+    lo, hi = max(min(layer.sum_min), alo), min(max(layer.sum_max), ahi)
+    if lo > hi or not kev._monotone_on(layer, lo, hi):
+        return
+    u0 = data.draw(st.integers(lo, hi))
+    u1 = data.draw(st.integers(u0, min(hi, u0 + 200_000)))
+    t = kev.stepped(layer, u0, u1, np.int64)
+    if t is None:  # too few sums to gain: nothing to check
+        return
+    ref = accumulate.post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
+    bits = np.zeros(u1 - u0 + 1, dtype=np.int64)
+    for k, name in enumerate(DATA_EVENTS):
+        if ref[name] is not None:
+            bits |= ref[name].astype(np.int64) << k
+    codes, ev = _expanded(t, u1 - u0 + 1)
+    assert codes.tolist() == np.asarray(ref["codes"], dtype=np.int64).tolist()
+    assert ev.tolist() == bits.tolist()

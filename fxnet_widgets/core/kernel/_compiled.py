@@ -10,10 +10,9 @@ to the look-up domain):
                 the first layer reads the per-input code columns stacked
 ``lut_apply``   a neuron's codes read from its steps 4-7 look-up table and the
                 histogram of its event bits, in one pass (numpy: three)
-``coarse_apply`` the same from a table over buckets of ``2**b`` sums, for a neuron whose steps
-                4-7 are monotone in the sum (no accumulator overflow on the data): a bucket
-                whose first sum and the next bucket's give the same code and events gives
-                them throughout; the samples of the other buckets are listed and computed exactly
+``stepped_apply`` the same from a table over buckets of ``2**b`` sums (:func:`.evaluate.stepped`,
+                for a layer whose steps 4-7 are monotone in the sum): a bucket without a step
+                inside holds one code and events throughout; the others have exact rows
 ``shifted_counts`` a histogram of ``(sum - origin) >> shift`` (a view's neuron histogram), one pass
 ``abs_error``   ``|value[code] - float|`` per sample in float64, the numpy path's operations
                 fused (a search's output error; numpy's own ``max`` and ``mean`` follow)
@@ -115,27 +114,24 @@ class _Kernels:
                     out[i] = codes_lut[np.int64(sp[i]) - m0]
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
-        def coarse_apply(sp: np.ndarray, start: int, m0: int, b: int, codes_q: np.ndarray, ev_q: np.ndarray,
-                         out: np.ndarray, hist: np.ndarray,
-                         idx: np.ndarray) -> tuple[int, int]:  # fmt: skip # pragma: no cover
-            # bucket q = (sp - m0) >> b; ev_q: the bucket's event bits, bit 7 set where the bucket
-            # holds a step: its samples are listed in idx for the caller to compute; stops when idx is
-            # full and returns (where to resume, how many listed)
-            nm = 0
-            cap = idx.shape[0]
-            for i in range(start, sp.shape[0]):
-                q = (np.int64(sp[i]) - m0) >> b
-                out[i] = codes_q[q]
+        def stepped_apply(sp: np.ndarray, off: int, b: int, codes_q: np.ndarray, ev_q: np.ndarray,
+                          slot: np.ndarray, exact_codes: np.ndarray, exact_ev: np.ndarray, out: np.ndarray,
+                          hist: np.ndarray) -> None:  # fmt: skip # pragma: no cover
+            # d = sp + off, bucket q = d >> b; ev_q: the bucket's event bits, bit 7 set where a step
+            # lies inside: then the code and events are row slot[q] of the exact tables at d's low bits
+            mask = (np.int64(1) << b) - 1
+            for i in range(sp.shape[0]):
+                d = np.int64(sp[i]) + off
+                q = d >> b
                 e = ev_q[q]
+                if e & 128:
+                    r = slot[q]
+                    out[i] = exact_codes[r, d & mask]
+                    e = exact_ev[r, d & mask]
+                else:
+                    out[i] = codes_q[q]
                 if e:  # rare: no histogram store (and its store-to-load stall) on a quiet sample
-                    if e & 128:
-                        idx[nm] = i
-                        nm += 1
-                        if nm == cap:
-                            return i + 1, nm
-                    else:
-                        hist[e] += 1
-            return sp.shape[0], nm
+                    hist[e] += 1
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def minmax(sp: np.ndarray) -> tuple[int, int]:  # pragma: no cover
@@ -169,7 +165,7 @@ class _Kernels:
         self.abs_error = abs_error
         self.dense_sums = dense_sums
         self.lut_apply = lut_apply
-        self.coarse_apply = coarse_apply
+        self.stepped_apply = stepped_apply
         self.minmax = minmax
 
 

@@ -24,7 +24,8 @@ from .accumulate import post_accumulate, smallest_int
 from .caches import INPUT_CACHE, MONOTONE_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
 
-__all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen"]
+__all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen",
+           "Stepped", "stepped", "expand"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -253,7 +254,6 @@ class LayerOut:
 
 
 _COARSE_MIN_SPAN = 1 << 13  # below this many distinct sums the exact look-up table is cheap enough
-_MIXED_CHUNK = 1 << 16  # samples of step buckets computed per call
 
 
 def _event_bits(out: dict[str, Any], size: int) -> np.ndarray:
@@ -275,48 +275,95 @@ def _monotone(table: np.ndarray) -> bool:
     return bool(flag) if held is table else bool(np.all(table[1:] >= table[:-1]))
 
 
-def _coarse(layer: IntegerLayer, kern: Any, j: int, sp: np.ndarray, m0: int, m1: int, row: np.ndarray,
-            counts: dict[str, np.ndarray]) -> bool:  # fmt: skip
-    """Steps 4-7 of neuron ``j`` through bucket tables (compiled; False: not applicable, nothing done).
+@dataclass(frozen=True, eq=False)
+class Stepped:
+    """Steps 4-7 of one layer over the sums ``[u0, u1]`` in buckets of ``2**b`` sums (see :func:`stepped`)."""
 
-    Applies when no sum on the data can overflow the accumulator: then the code, ``table_low``
-    and ``table_high`` are monotone in the sum (rounding, clamp and the table's entries are), so a
-    bucket whose first sum and the next bucket's first sum agree on all three agrees throughout.
+    u0: int
+    b: int
+    codes_q: np.ndarray  # per bucket, the code it holds throughout (where it has no step inside)
+    ev_q: np.ndarray  # per bucket, its event bits; 128 where a step lies inside
+    slot: np.ndarray  # per bucket, its row of the exact tables (-1: none)
+    exact_codes: np.ndarray  # (buckets with a step, 2**b): the code of each of their sums
+    exact_ev: np.ndarray  # and its event bits
+
+
+_STEPPED_MIN_SPAN = 1 << 13  # below this many sums one look-up table over them all is as cheap
+_EXPAND_MAX = _LUT_MAX  # longer bucketed tables are read by buckets, not expanded
+
+
+def stepped(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> Stepped | None:
+    """Steps 4-7 over the sums ``[u0, u1]``, exact, from far fewer evaluations than sums (None: no gain).
+
+    For a layer whose steps 4-7 are monotone on ``[u0, u1]`` (no sum there overflows the
+    accumulator, and the table never decreases; the caller checks): the code, ``table_low`` and
+    ``table_high`` are then monotone in the sum, so a bucket whose first sum and the next bucket's
+    agree on all three agrees throughout. :func:`.accumulate.post_accumulate` runs on every
+    bucket's first sum and on every sum of the buckets with a step inside, no others. The
+    bucket width ``2**b`` is about ``sqrt(span / steps)`` (a code range of ``c`` values has at
+    most ``c + 1`` steps), which makes the two evaluation counts alike.
     """
-    lo = layer.sum_min[j]
-    alo, ahi = signed_range(layer.plan.acc_bits)
-    table = layer.table
-    if lo + m0 < alo or lo + m1 > ahi or (table is not None and not _monotone(table)):
-        return False
-    n = sp.shape[0]
-    b = ((m1 - m0 + 1) // min(max(n // 8, 1024), 1 << 16)).bit_length()  # bucket width 2**b
-    if b == 0:
-        return False
-    nb = ((m1 - m0) >> b) + 1
-    # every bucket's first sum and the last sum m1: bucket q agrees throughout when its first sum and
-    # the next bucket's (for the last, m1) agree, as all sums between them do (monotone); a step just
-    # at the next bucket's start only sends this bucket's samples to the exact path
-    pts = m0 + (np.arange(nb + 1, dtype=np.int64) << np.int64(b))
-    pts[nb] = m1
-    out = post_accumulate(layer, pts + np.int64(lo), lo + m0, lo + m1)
+    span = u1 - u0 + 1
+    steps = max(1, min(span, layer.code_max - layer.code_min + 3))
+    b = ((span // steps).bit_length() - 1) // 2
+    if b <= 0:
+        return None
+    nb = ((span - 1) >> b) + 1
+    # every bucket's first sum, and u1 after the last (a step just at the next bucket's start only
+    # sends this bucket to the exact rows)
+    pts = u0 + (np.arange(nb + 1, dtype=np.int64) << np.int64(b))
+    pts[nb] = u1
+    out = post_accumulate(layer, pts, u0, u1)
     c, ev = out["codes"], _event_bits(out, nb + 1)
+    step = (c[:nb] != c[1:]) | (ev[:nb] != ev[1:])
     ev_q = ev[:nb].copy()
-    ev_q[(c[:nb] != c[1:]) | (ev[:nb] != ev[1:])] = 128  # a step inside: its samples are computed exactly
-    hist = np.zeros(8, dtype=np.int64)
-    idx = np.empty(min(n, _MIXED_CHUNK), dtype=np.int64)  # bounded: no per-sample index array on a large frame
-    codes_q = np.ascontiguousarray(c[:nb], dtype=row.dtype)
-    start = 0
-    while start < n:
-        start, nm = kern.coarse_apply(sp, start, m0, b, codes_q, ev_q, row, hist, idx)
-        if nm:  # the samples of buckets with a step inside: exactly, per sample
-            sel = idx[:nm]
-            rest = post_accumulate(layer, sp[sel].astype(np.int64) + np.int64(lo), lo + m0, lo + m1)
-            row[sel] = rest["codes"]
-            for name in DATA_EVENTS:
-                if rest[name] is not None:
-                    counts[name][j] += int(np.count_nonzero(rest[name]))
-    _add_hist(counts, j, hist)
-    return True
+    ev_q[step] = 128
+    rows = np.flatnonzero(step)
+    slot = np.full(nb, -1, dtype=np.int32)
+    slot[rows] = np.arange(rows.size, dtype=np.int32)
+    w = 1 << b
+    # the sums of the step buckets (the last bucket's beyond u1 repeat u1: never read)
+    sums = np.minimum((rows.astype(np.int64) << np.int64(b))[:, None] + (u0 + np.arange(w, dtype=np.int64)), u1)
+    if rows.size:
+        ex = post_accumulate(layer, sums.reshape(-1), u0, u1)
+        exact_codes = np.ascontiguousarray(ex["codes"], dtype=code_dt).reshape(rows.size, w)
+        exact_ev = _event_bits(ex, sums.size).reshape(rows.size, w)
+    else:
+        exact_codes, exact_ev = np.zeros((0, w), dtype=code_dt), np.zeros((0, w), dtype=np.uint8)
+    return Stepped(u0, b, np.ascontiguousarray(c[:nb], dtype=code_dt), ev_q, slot, exact_codes, exact_ev)
+
+
+def expand(t: Stepped) -> tuple[np.ndarray, np.ndarray]:
+    """The look-up tables a :class:`Stepped` stands for: per sum from ``t.u0`` on, its code and its
+    event bits (empty where no sum has an event); a bucket's repeated values, then the exact rows.
+    """
+    w, nb = 1 << t.b, t.codes_q.shape[0]
+    rows = np.flatnonzero(t.slot >= 0)
+    codes = np.empty((nb, w), dtype=t.codes_q.dtype)
+    codes[...] = t.codes_q[:, None]
+    codes[rows] = t.exact_codes
+    if not (np.any(t.ev_q & 127) or t.exact_ev.any()):
+        return codes.reshape(-1), np.zeros(0, dtype=np.uint8)
+    ev = np.empty((nb, w), dtype=np.uint8)
+    ev[...] = (t.ev_q & 127)[:, None]
+    ev[rows] = t.exact_ev
+    return codes.reshape(-1), ev.reshape(-1)
+
+
+def _monotone_on(layer: IntegerLayer, u0: int, u1: int) -> bool:
+    """Whether steps 4-7 are monotone in the sum on ``[u0, u1]`` (no overflow there, a table that never decreases)."""
+    alo, ahi = signed_range(layer.plan.acc_bits)
+    return alo <= u0 and u1 <= ahi and (layer.table is None or _monotone(layer.table))
+
+
+def _layer_stepped(layer: IntegerLayer, ms: list[tuple[int, int]], code_dt: Any) -> Stepped | None:
+    """One :func:`stepped` over the union of the layer's sums on the data (every neuron shares the
+    layer's steps 4-7), where it is exact and saves work; None: the other paths."""
+    u0 = min(lo + m0 for lo, (m0, _) in zip(layer.sum_min, ms))
+    u1 = max(lo + m1 for lo, (_, m1) in zip(layer.sum_min, ms))
+    if u1 - u0 + 1 < _STEPPED_MIN_SPAN or not _monotone_on(layer, u0, u1):
+        return None
+    return stepped(layer, u0, u1, code_dt)
 
 
 def _lut_fits(m0: int, m1: int, n: int) -> bool:
@@ -365,7 +412,12 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         ms = [(int(a), int(b)) for a, b in zip(bounds[0], bounds[1])]
     else:
         ms = [(int(sp.min()), int(sp.max())) if n else (0, 0) for sp in shifted]
-    shared = _shared_domain(layer, ms, n, kern is not None)
+    # compiled: one bucketed evaluation of steps 4-7 for the whole layer where they are monotone
+    st = _layer_stepped(layer, ms, code_dt) if kern is not None and n else None
+    shared = _shared_domain(layer, ms, n, kern is not None) if st is None else None
+    # expanded into plain look-up tables where they are not too long: a gather a sample is about a
+    # third of a bucket look-up's time, and expanding costs about one byte written per sum
+    luts = expand(st) if st is not None and ((st.codes_q.shape[0] << st.b) <= _EXPAND_MAX) else None
     for j, sp in enumerate(shifted):
         lo = layer.sum_min[j]
         m0, m1 = ms[j]
@@ -373,7 +425,19 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
             obs_min[j], obs_max[j] = lo + m0, lo + m1
         span = m1 - m0 + 1
         wide = span >= max(_COARSE_MIN_SPAN, n // 2)  # an exact look-up table would cost about a pass per sample
-        if kern is not None and wide and _coarse(layer, kern, j, sp, m0, m1, codes[j], counts):
+        own = None
+        if st is None and kern is not None and wide and _monotone_on(layer, lo + m0, lo + m1):
+            own = stepped(layer, lo + m0, lo + m1, code_dt)  # this neuron alone (another one overflows)
+        if st is not None or own is not None:
+            t = st if st is not None else own
+            assert t is not None and kern is not None
+            seen = np.zeros(8, dtype=np.int64)  # samples by event bits
+            if t is st and luts is not None:  # the expanded tables: one gather a sample
+                kern.lut_apply(sp, t.u0 - lo, luts[0], luts[1], codes[j], seen)
+            else:
+                kern.stepped_apply(sp, lo - t.u0, t.b, t.codes_q, t.ev_q, t.slot, t.exact_codes, t.exact_ev,
+                                   codes[j], seen)  # fmt: skip
+            _add_hist(counts, j, seen)
             acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
             continue
         if _lut_fits(m0, m1, n):
