@@ -1,7 +1,8 @@
 """An isometric picture of the whole RGB cube: where fixed point and float disagree.
 
-The picture is drawn with numpy (a z-buffer over small squares, one per voxel)
-and pillow (the cube's edges and axis letters). Agreeing "target" voxels are
+The picture is drawn with numpy (a painter's algorithm over small squares, one per voxel;
+compiled once the kernel's loops are loaded) and pillow (the cube's edges and axis letters,
+drawn once per picture size and blended in as pillow blends them). Agreeing "target" voxels are
 faint amber dots, so the shape of the target region stays visible; voxels where
 the decisions differ are solid squares (magenta: only fixed point says target,
 teal: only float), shaded darker with depth.
@@ -18,7 +19,7 @@ from typing import Any
 import numpy as np
 from PIL import Image, ImageDraw
 
-from ._paint import paint
+from ._paint import compiled, paint_numpy
 from .palette import AGREE_POSITIVE, DISAGREE, FIXED_ONLY, FLOAT_ONLY
 from .raster import _check_level, rgb_png
 
@@ -76,6 +77,11 @@ class _Geometry:
     edge: np.ndarray
     pad: int
     side: int
+    lines: np.ndarray  # flat pixel indices of the front edges
+    letters: tuple  # per axis letter: (flat pixel indices, coverage, colour)
+    order: np.ndarray  # the voxels by depth level (stable): the painter's order
+    inner: np.ndarray  # (3, voxels) packed 0xRRGGBB square colours, shaded: fixed only, float only, differ
+    rim: np.ndarray  # and their darker rims
 
 
 @functools.lru_cache(maxsize=8)
@@ -104,9 +110,97 @@ def _geometry(n: int, size: int) -> _Geometry:
         + pad
     )
     offsets = oy * side + ox
-    for a in (img, xi, yi, ok, level, shade, base, offsets, edge):
+    lines, letters = _overlay(corners, front, size)
+    order = np.argsort(level, kind="stable")
+    colours = np.array([FIXED_ONLY, FLOAT_ONLY, DISAGREE], dtype=np.int64)
+    inner = np.stack([_packed(c * shade) for c in colours])
+    rim = np.stack([_packed(c * shade * 0.78) for c in colours])
+    for a in (img, xi, yi, ok, level, shade, base, offsets, edge, lines, order, inner, rim):
         a.setflags(write=False)
-    return _Geometry(corners, front, img, xi, yi, ok, level, shade, base, offsets, edge, pad, side)
+    return _Geometry(corners, front, img, xi, yi, ok, level, shade, base, offsets, edge, pad, side, lines, letters,
+                     order, inner, rim)  # fmt: skip
+
+
+def _packed(rgb: np.ndarray) -> np.ndarray:
+    """(voxels, 3) float RGB as one uint32 ``0xRRGGBB`` each (one store per pixel)."""
+    c = np.clip(rgb, 0, 255).astype(np.uint32)
+    return (c[:, 0] << 16) | (c[:, 1] << 8) | c[:, 2]
+
+
+_FAINT = (np.array(AGREE_POSITIVE, dtype=np.float64) * 0.7 + np.array(_BACKGROUND) * 0.3).astype(np.uint8)
+
+
+def _letter_spots(corners: dict) -> list[tuple[str, tuple[float, float], tuple[int, int, int]]]:
+    """The axis letters: text, position and colour (beside the red, green and blue corners)."""
+    spots = []
+    for label, q, col in (("R", (1, 0, 0), (200, 40, 40)), ("G", (0, 1, 0), (30, 140, 40)),
+                          ("B", (0, 0, 1), (40, 70, 200))):  # fmt: skip
+        x0, y0 = corners[q]
+        spots.append((label, (float(x0[0]) + (4 if label == "R" else -12 if label == "G" else 4), float(y0[0]) - 6),
+                      col))  # fmt: skip
+    return spots
+
+
+def _overlay(corners: dict, front: list, size: int) -> tuple[np.ndarray, tuple]:
+    """What pillow draws over the squares, as pixels: the front edges' flat indices, and per axis
+    letter its pixels' flat indices, coverage (0-255) and colour.
+
+    Drawn once per geometry on a blank ``L`` picture with ink 255, where pillow's blend gives the
+    coverage itself; :func:`_draw_overlay` then blends as pillow does on RGB (tests compare both).
+    """
+    mask = Image.new("L", (size, size), 0)
+    draw = ImageDraw.Draw(mask)
+    for seg in front:
+        draw.line(seg, fill=255, width=1)
+    lines = np.flatnonzero(np.asarray(mask).reshape(-1))
+    letters = []
+    for label, xy, col in _letter_spots(corners):
+        one = Image.new("L", (size, size), 0)
+        ImageDraw.Draw(one).text(xy, label, fill=255)
+        cover = np.asarray(one).reshape(-1)
+        px = np.flatnonzero(cover)
+        a = cover[px].astype(np.uint32)[:, None]
+        for arr in (px, a):
+            arr.setflags(write=False)
+        letters.append((px, a, np.array(col, dtype=np.uint32)))
+    return lines, tuple(letters)
+
+
+def _draw_overlay(img: np.ndarray, geo: _Geometry) -> None:
+    """The front edges (set to the edge colour) and the axis letters (blended by coverage) on ``img``,
+    the pixels pillow's ``ImageDraw.line`` and ``text`` give."""
+    flat = img.reshape(-1, 3)
+    flat[geo.lines] = _EDGE
+    for px, a, col in geo.letters:
+        # pillow's blend of ink over a pixel by coverage a: DIV255(under * (255 - a) + ink * a)
+        t = flat[px].astype(np.uint32) * (255 - a) + col[None, :] * a + 128
+        flat[px] = ((t >> 8) + t) >> 8
+
+
+def _voxels_numpy(img: np.ndarray, geo: _Geometry, fxf: np.ndarray, flf: np.ndarray, n_classes: int) -> None:
+    """The faint dots and the squares where the decisions differ, by numpy (the reference painter)."""
+    diff = fxf != flf
+    # faint dots: agreeing target voxels (binary) / non-zero classes
+    agree_pos = (~diff) & (fxf != 0)
+    if agree_pos.any():
+        ok = geo.dot_ok[agree_pos]
+        img[geo.dot_y[agree_pos][ok], geo.dot_x[agree_pos][ok]] = _FAINT
+    if not diff.any():
+        return
+    where = np.flatnonzero(diff)
+    level = geo.level[where]
+    base = geo.base[where]
+    # a square drawn later on exactly the same footprint (the same view ray, nearer)
+    # overwrites all of an earlier one: only the nearest level of each footprint is drawn
+    nearest = np.full(geo.side * geo.side, -1, dtype=np.int64)
+    np.maximum.at(nearest, base, level)
+    keep = level == nearest[base]
+    where, level, base = where[keep], level[keep], base[keep]
+    kind = np.where(fxf[where] > flf[where], 0, 1) if n_classes == 2 else np.full(where.size, 2)
+    inner, rim = geo.inner[kind, where], geo.rim[kind, where]
+    # painter's algorithm by depth level: nearer levels drawn later
+    order = np.argsort(level, kind="stable")
+    paint_numpy(img, geo.pad, geo.side, base[order], level[order], geo.offsets, geo.edge, inner[order], rim[order])
 
 
 def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) -> np.ndarray:
@@ -123,56 +217,16 @@ def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) ->
         raise ValueError(f"size must be an integer between 64 and 2048, not {size!r}")
     n = fx.shape[0]
     geo = _geometry(int(n), int(size))
-    corners, front = geo.corners, geo.front
     img = geo.back.copy()
     fxf, flf = fx.reshape(-1), fl.reshape(-1)
-    diff = fxf != flf
-    # faint dots: agreeing target voxels (binary) / non-zero classes
-    agree_pos = (~diff) & (fxf != 0)
-    if agree_pos.any():
-        ok = geo.dot_ok[agree_pos]
-        faint = (np.array(AGREE_POSITIVE, dtype=np.float64) * 0.7 + np.array(_BACKGROUND) * 0.3).astype(np.uint8)
-        img[geo.dot_y[agree_pos][ok], geo.dot_x[agree_pos][ok]] = faint
-    if diff.any():
-        where = np.flatnonzero(diff)
-        level = geo.level[where]
-        base = geo.base[where]
-        # a square drawn later on exactly the same footprint (the same view ray, nearer)
-        # overwrites all of an earlier one: only the nearest level of each footprint is drawn
-        nearest = np.full(geo.side * geo.side, -1, dtype=np.int64)
-        np.maximum.at(nearest, base, level)
-        keep = level == nearest[base]
-        where, level, base = where[keep], level[keep], base[keep]
-        if n_classes == 2:
-            colour = np.where((fxf[where] > flf[where])[:, None], np.array(FIXED_ONLY), np.array(FLOAT_ONLY))
-        else:
-            colour = np.broadcast_to(np.array(DISAGREE), (where.size, 3))
-        shade = geo.shade[where]
-
-        def packed(rgb: np.ndarray) -> np.ndarray:  # RGB in one uint32: one store per pixel
-            c = np.clip(rgb, 0, 255).astype(np.uint32)
-            return (c[:, 0] << 16) | (c[:, 1] << 8) | c[:, 2]
-
-        inner, rim = packed(colour * shade), packed(colour * shade * 0.78)
-        # painter's algorithm by depth level: nearer levels drawn later
-        order = np.argsort(level, kind="stable")
-        paint(img, geo.pad, geo.side, base[order], level[order], geo.offsets, geo.edge, inner[order], rim[order])
-    pil = Image.fromarray(img)
-    draw = ImageDraw.Draw(pil)
-    for seg in front:
-        draw.line(seg, fill=_EDGE, width=1)
-    for label, q, col in (
-        ("R", (1, 0, 0), (200, 40, 40)),
-        ("G", (0, 1, 0), (30, 140, 40)),
-        ("B", (0, 0, 1), (40, 70, 200)),
-    ):
-        x0, y0 = corners[q]
-        draw.text(
-            (float(x0[0]) + (4 if label == "R" else -12 if label == "G" else 4), float(y0[0]) - 6),
-            label,
-            fill=col,
-        )
-    return np.asarray(pil)
+    loop = compiled()
+    if loop is not None:  # dots and squares in one compiled pass (the same pixels: tests compare)
+        loop(img, fxf, flf, _FAINT, geo.dot_x, geo.dot_y, geo.dot_ok, geo.order, geo.pad, geo.side, geo.base,
+             geo.offsets, geo.edge, geo.inner, geo.rim, n_classes == 2)  # fmt: skip
+    else:
+        _voxels_numpy(img, geo, fxf, flf, n_classes)
+    _draw_overlay(img, geo)
+    return img
 
 
 def cube_png(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2, compress_level: int = 1) -> bytes:

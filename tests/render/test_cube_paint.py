@@ -1,7 +1,8 @@
-"""The cube picture's compiled painter against the numpy painter (the reference path).
+"""The cube picture's compiled painter against the numpy painter (the reference path), and the
+precomputed overlay against pillow drawing it.
 
-Both write the same squares in the same order (painter's algorithm: nearer depth levels later),
-so every pixel must be equal, on random grids of every size and disagreement density,
+Every pixel must be equal (the numpy painter writes the squares level by level, nearer later;
+the compiled one nearest first, each pixel once), on random grids of every size and disagreement density,
 two classes and three, including small pictures where squares of one level overlap.
 """
 
@@ -10,6 +11,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from PIL import Image, ImageDraw
+
+from fxnet_widgets.render import cube
 from fxnet_widgets.render.cube import render_cube
 
 
@@ -32,3 +36,24 @@ def test_compiled_painter_draws_the_numpy_painters_pixels(monkeypatch: pytest.Mo
         # the painting did something where they differ (else the comparison proves little)
         if (fx != fl).any():
             assert (ref != render_cube(fx, fx, size, k)).any()
+
+
+@pytest.mark.parametrize("size", [64, 100, 256, 300])
+def test_overlay_is_what_pillow_draws_over_any_picture(size: int):
+    # reference: pillow itself drawing the front edges and the axis letters on the picture (as the
+    # picture was drawn before the overlay was precomputed): the blended letter pixels depend on
+    # what lies under them, so the check runs over random pictures
+    geo = cube._geometry(8, size)
+    rng = np.random.default_rng(size)
+    for _ in range(5):
+        under = rng.integers(0, 256, (size, size, 3), dtype=np.uint8)
+        pil = Image.fromarray(under.copy())
+        draw = ImageDraw.Draw(pil)
+        for seg in geo.front:
+            draw.line(seg, fill=cube._EDGE, width=1)
+        for label, xy, col in cube._letter_spots(geo.corners):
+            draw.text(xy, label, fill=col)
+        got = under.copy()
+        cube._draw_overlay(got, geo)
+        assert np.array_equal(np.asarray(pil), got)
+        assert (got != under).any()
