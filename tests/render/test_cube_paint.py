@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
 from PIL import Image, ImageDraw
 
 from fxnet_widgets.render import cube
