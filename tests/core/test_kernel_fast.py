@@ -173,3 +173,58 @@ def test_stepped_table_equals_steps_4_to_7_on_every_sum(data):
     codes, ev = _expanded(t, u1 - u0 + 1)
     assert codes.tolist() == np.asarray(ref["codes"], dtype=np.int64).tolist()
     assert ev.tolist() == bits.tolist()
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.data())
+def test_layer_tables_equal_steps_4_to_7_on_every_sum_overflow_included(data):
+    # the piecewise tables (s_A's runs and held values from formats' wrap and saturate at the piece
+    # ends, steps 5-7 from the bucketed evaluation) must give, for every sum of a domain that may
+    # reach beyond the accumulator, post_accumulate's code and events on that sum
+    from fxnet_widgets.core.kernel import accumulate, build
+    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel.layers import DATA_EVENTS
+
+    doc, plans, _bits, _n_in = draw_network_and_plan(data.draw, max_bits=9)
+    net, plan = fw.Network.from_dict(doc), fw.Plan.from_dict({"layers": plans})
+    layer = build.build_integer_network(net, plan).layers[data.draw(st.integers(0, len(plans) - 1))]
+    lo, hi = min(layer.sum_min), max(layer.sum_max)
+    u0 = data.draw(st.integers(lo, hi))
+    u1 = data.draw(st.integers(u0, min(hi, u0 + 300_000)))
+    got = kev.layer_tables(layer, u0, u1, np.int64)
+    if got is None:  # a table that decreases somewhere, or too many turns of a wrapping accumulator
+        assert (layer.table is not None and not kev._monotone(layer.table)) or kev._acc_pieces(layer, u0, u1) is None
+        return
+    ref = accumulate.post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
+    bits = np.zeros(u1 - u0 + 1, dtype=np.int64)
+    for k, name in enumerate(DATA_EVENTS):
+        if ref[name] is not None:
+            bits |= ref[name].astype(np.int64) << k
+    codes, ev = got
+    assert codes.tolist() == np.asarray(ref["codes"], dtype=np.int64).tolist()
+    assert (ev.astype(np.int64) if ev.shape[0] else np.zeros_like(bits)).tolist() == bits.tolist()
+
+
+@pytest.mark.parametrize("acc_overflow", ["wrap", "saturate"])
+@pytest.mark.parametrize("acc_bits", [15, 16, 18])
+def test_piecewise_tables_on_an_overflowing_accumulator_match_the_numpy_path(monkeypatch, acc_overflow, acc_bits):
+    # sums of up to about 2**20 in a 15..18-bit accumulator: s_A wraps several turns or holds its
+    # ends; codes, events and s_A itself (read, so the table made on first use is made) must be
+    # the numpy path's, and overflows must be counted
+    from fxnet_widgets.core.kernel import evaluate as kev
+
+    rng = np.random.default_rng(acc_bits)
+    net = fw.Network.from_layers(
+        [(rng.normal(0, 4, (3, 3)), rng.normal(0, 1, 3), "sigmoid"), (rng.normal(0, 4, (1, 3)), [0.0], "tanh")]
+    )
+    codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
+    plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=acc_bits, acc_overflow=acc_overflow,
+                           table_bits=9, table_frac=5, out_bits=8)  # fmt: skip
+    calls = []
+    real = kev.layer_tables
+    monkeypatch.setattr(kev, "layer_tables", lambda *a: calls.append(real(*a)) or calls[-1])
+    ref = _run(net, plan, codes, "numpy")
+    fast = _run(net, plan, codes, "compiled")
+    assert any(c is not None for c in calls), "the piecewise tables must have been used"
+    assert fast == ref
+    assert sum(sum(e["acc_overflow"]) for e in fast["events"]) > 0

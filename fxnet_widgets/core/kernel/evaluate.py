@@ -11,12 +11,14 @@
 
 from __future__ import annotations
 
+import functools
 import hashlib
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
+from .. import formats
 from ..formats import signed_range
 from ..network import as_codes
 from . import _compiled
@@ -243,7 +245,8 @@ class LayerOut:
             for j in range(L.n_out):
                 direct = self._acc_direct[j]
                 if isinstance(direct, tuple):  # (s_A over the look-up domain, indices): gathered on first use
-                    gather(direct[0], direct[1], out[j])
+                    table = direct[0]() if callable(direct[0]) else direct[0]  # the table itself made on first use
+                    gather(table, direct[1], out[j])
                 elif direct is not None:
                     out[j] = direct
                 else:
@@ -366,6 +369,77 @@ def _layer_stepped(layer: IntegerLayer, ms: list[tuple[int, int]], code_dt: Any)
     return stepped(layer, u0, u1, code_dt)
 
 
+_MAX_PIECES = 64  # sums wrapping round the accumulator more often than this: the other paths
+
+
+def _acc_pieces(layer: IntegerLayer, u0: int, u1: int) -> list[tuple[int, int, int, int]] | None:
+    """``[u0, u1]`` cut where the accumulator value s_A stops following the sum: ``(p0, p1, a0, a1)``
+    per piece, s_A running from ``a0`` (at ``p0``) to ``a1`` (at ``p1``) one step a sum, or holding
+    one value (``a0 == a1``) where a saturated accumulator holds its end. s_A at the ends comes
+    from :mod:`..formats` (wrap and saturate are written there only). None: too many pieces.
+    """
+    p = layer.plan
+    alo, ahi = signed_range(p.acc_bits)
+    if alo <= u0 and u1 <= ahi:
+        return [(u0, u1, u0, u1)]
+    cuts = [u0]
+    if p.acc_overflow == "wrap":  # the accumulator wraps at its ends: a new piece at every turn
+        period = 1 << p.acc_bits
+        k0, k1 = (u0 - alo) // period, (u1 - alo) // period
+        if k1 - k0 + 1 > _MAX_PIECES:
+            return None
+        cuts += [alo + k * period for k in range(k0 + 1, k1 + 1)]
+    else:  # saturate: constant below and above the range
+        cuts += [c for c in (alo, ahi + 1) if u0 < c <= u1]
+    ends = [(a, b - 1) for a, b in zip(cuts, cuts[1:] + [u1 + 1])]
+    flat = np.array([v for e in ends for v in e], dtype=np.int64)
+    acc = formats.wrap(flat, p.acc_bits) if p.acc_overflow == "wrap" else formats.saturate(flat, p.acc_bits)
+    pieces = [(a, b, int(acc[2 * i]), int(acc[2 * i + 1])) for i, (a, b) in enumerate(ends)]
+    for p0, p1, a0, a1 in pieces:  # each piece one shifted run or one held value
+        assert a1 - a0 == p1 - p0 or a0 == a1, (p0, p1, a0, a1)
+    return pieces
+
+
+def layer_tables(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    """The codes and event bits (empty: none) of steps 4-7 for every sum in ``[u0, u1]``, the values of
+    :func:`.accumulate.post_accumulate` on each, from far fewer evaluations (None: not applicable).
+
+    For a layer whose table never decreases (or that has none): on accumulator values inside the
+    accumulator's range steps 5-7 are monotone, so :func:`stepped` evaluates them over the values
+    the sums reach; the sums are cut into pieces on which s_A runs one step a sum or holds one
+    value (:func:`_acc_pieces`); each piece's codes are a slice of those (or one value), and the
+    pieces where s_A differs from the sum carry the ``acc_overflow`` bit.
+    """
+    if (layer.table is not None and not _monotone(layer.table)) or u1 - u0 + 1 > _EXPAND_MAX:
+        return None
+    pieces = _acc_pieces(layer, u0, u1)
+    if pieces is None:
+        return None
+    v0, v1 = min(pc[2] for pc in pieces), max(pc[3] for pc in pieces)  # the accumulator values reached
+    t = stepped(layer, v0, v1, code_dt)
+    if t is not None:
+        vc, ve = expand(t)
+    else:
+        out = post_accumulate(layer, np.arange(v0, v1 + 1, dtype=np.int64), v0, v1)
+        vc, ve = np.ascontiguousarray(out["codes"], dtype=code_dt), _event_bits(out, v1 - v0 + 1)
+        if not ve.any():
+            ve = np.zeros(0, dtype=np.uint8)
+    span = u1 - u0 + 1
+    if len(pieces) == 1 and pieces[0][2] == u0 and pieces[0][3] == u1:  # s_A is the sum throughout
+        return vc[:span], ve[:span]
+    codes = np.empty(span, dtype=code_dt)
+    ev = np.zeros(span, dtype=np.uint8)
+    for p0, p1, a0, a1 in pieces:
+        dst = slice(p0 - u0, p1 - u0 + 1)
+        src = slice(a0 - v0, a1 - v0 + 1) if a1 - a0 == p1 - p0 else a0 - v0  # a run, or one held value
+        codes[dst] = vc[src]
+        if ve.shape[0]:
+            ev[dst] = ve[src]
+        if not (p0 == a0 and p1 == a1):
+            ev[dst] |= np.uint8(1 << DATA_EVENTS.index("acc_overflow"))
+    return codes, ev
+
+
 def _lut_fits(m0: int, m1: int, n: int) -> bool:
     """Whether a neuron whose offset sums span ``[m0, m1]`` on ``n`` samples gets an exact look-up table."""
     span = m1 - m0 + 1
@@ -395,6 +469,14 @@ def _shared_domain(layer: IntegerLayer, ms: list[tuple[int, int]], n: int,
     return u0, u1, post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
 
 
+def _acc_table(layer: IntegerLayer, lo: int, m0: int, m1: int) -> np.ndarray:
+    """s_A of the sums ``lo + m0 .. lo + m1``, indexed by the offset sum (entries below ``m0`` never read)."""
+    acc = post_accumulate(layer, np.arange(lo + m0, lo + m1 + 1, dtype=np.int64), lo + m0, lo + m1)["acc"]
+    full = np.empty(m0 + acc.shape[0], dtype=acc.dtype)
+    full[m0:] = acc
+    return full
+
+
 def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
     """Steps 4-7 on the offset sums ``shifted``; ``bounds``: their per-neuron min and max, when known."""
     n = shifted[0].shape[0] if shifted else 0
@@ -412,9 +494,16 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         ms = [(int(a), int(b)) for a, b in zip(bounds[0], bounds[1])]
     else:
         ms = [(int(sp.min()), int(sp.max())) if n else (0, 0) for sp in shifted]
-    # compiled: one bucketed evaluation of steps 4-7 for the whole layer where they are monotone
-    st = _layer_stepped(layer, ms, code_dt) if kern is not None and n else None
-    shared = _shared_domain(layer, ms, n, kern is not None) if st is None else None
+    # compiled: one table of steps 4-7 over the union of the layer's sums on the data (every neuron
+    # shares the layer's steps 4-7), from a bucketed evaluation; too long to expand: read by buckets
+    lt = st = None
+    if kern is not None and n:
+        u0 = min(lo + m0 for lo, (m0, _) in zip(layer.sum_min, ms))
+        u1 = max(lo + m1 for lo, (_, m1) in zip(layer.sum_min, ms))
+        lt = layer_tables(layer, u0, u1, code_dt)
+        st = _layer_stepped(layer, ms, code_dt) if lt is None else None
+    shared = _shared_domain(layer, ms, n, kern is not None) if st is None and lt is None else None
+    alo, ahi = signed_range(layer.plan.acc_bits)
     # expanded into plain look-up tables where they are not too long: a gather a sample is about a
     # third of a bucket look-up's time, and expanding costs about one byte written per sum
     luts = expand(st) if st is not None and ((st.codes_q.shape[0] << st.b) <= _EXPAND_MAX) else None
@@ -423,6 +512,16 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         m0, m1 = ms[j]
         if n:
             obs_min[j], obs_max[j] = lo + m0, lo + m1
+        if lt is not None:
+            assert kern is not None
+            seen = np.zeros(8, dtype=np.int64)  # samples by event bits
+            kern.lut_apply(sp, u0 - lo, lt[0], lt[1], codes[j], seen)
+            _add_hist(counts, j, seen)
+            if alo <= lo + m0 and lo + m1 <= ahi:
+                acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
+            else:  # s_A over this neuron's domain, made only if s_A is read
+                acc_direct.append((functools.partial(_acc_table, layer, lo, m0, m1), sp))
+            continue
         span = m1 - m0 + 1
         wide = span >= max(_COARSE_MIN_SPAN, n // 2)  # an exact look-up table would cost about a pass per sample
         own = None
