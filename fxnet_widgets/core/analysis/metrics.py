@@ -22,6 +22,7 @@ from typing import Any
 import numpy as np
 
 from ..kernel import Emulation, _compiled
+from ..kernel.emulation import class_dtype
 
 __all__ = ["ErrorMetrics", "error_metrics", "output_errors", "check_labels", "pair_counts"]
 
@@ -29,7 +30,8 @@ __all__ = ["ErrorMetrics", "error_metrics", "output_errors", "check_labels", "pa
 def check_labels(
     labels: Any, n: int, shape: tuple[int, ...] | None, n_classes: int, what: str = "labels"
 ) -> np.ndarray:
-    """Validate class labels for ``n`` samples; return them flat as int64.
+    """Validate class labels for ``n`` samples; return them flat, in the narrowest unsigned type
+    that holds every class index (uint8 up to 256 classes, as ``Emulation.decisions``).
 
     Accepted: ``n`` integers (or an ``H x W`` array for an image of that shape),
     booleans counting as 0/1, each in ``[0, n_classes)``.
@@ -42,13 +44,13 @@ def check_labels(
     if not (arr.shape == (n,) or (shape is not None and arr.shape == tuple(shape))):
         want = f"({n},)" if shape is None else f"({n},) or {tuple(shape)}"
         raise ValueError(f"{what} must have shape {want} (one per sample), not {arr.shape}")
-    flat = arr.astype(np.int64).reshape(-1)  # one copy (a strided view is not copied twice)
-    if flat.size:
-        lo, hi = int(flat.min()), int(flat.max())
+    if arr.size:
+        lo, hi = int(arr.min()), int(arr.max())
         if lo < 0 or hi >= n_classes:
             bad = lo if lo < 0 else hi
             raise ValueError(f"{what} must be between 0 and {n_classes - 1} (class indices), not {bad}")
-    return flat
+    # one copy, checked first: every value fits (a strided view is not copied twice)
+    return arr.astype(class_dtype(n_classes)).reshape(-1)
 
 
 @dataclass(frozen=True, eq=False)

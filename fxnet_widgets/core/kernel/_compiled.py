@@ -154,12 +154,23 @@ class _Kernels:
 
         @numba.njit(cache=True, nogil=True, boundscheck=False)
         def shifted_counts(d: np.ndarray, off: int, shift: int, counts: np.ndarray) -> None:  # pragma: no cover
-            # counts[(d + off) >> shift] += 1 for the values in 0..len(counts)-1 (the numpy path's bincount, cut)
+            # counts[(d + off) >> shift] += 1 for the values in 0..len(counts)-1 (the numpy path's bincount, cut);
+            # four interleaved part counts: neighbouring pixels often share a bin, and one count's
+            # increments would wait on each other (store to load)
             nb = counts.shape[0]
-            for i in range(d.shape[0]):
+            part = np.zeros((4, nb), dtype=np.int64)
+            n = d.shape[0]
+            for i in range(0, n - 3, 4):
+                for r in range(4):
+                    q = (np.int64(d[i + r]) + off) >> shift
+                    if 0 <= q < nb:
+                        part[r, q] += 1
+            for i in range(n - n % 4, n):
                 q = (np.int64(d[i]) + off) >> shift
                 if 0 <= q < nb:
-                    counts[q] += 1
+                    part[0, q] += 1
+            for q in range(nb):
+                counts[q] += part[0, q] + part[1, q] + part[2, q] + part[3, q]
 
         self.shifted_counts = shifted_counts
         self.abs_error = abs_error

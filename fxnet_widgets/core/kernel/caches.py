@@ -14,7 +14,7 @@ from typing import Any
 __all__ = ["LRU", "MONOTONE_CACHE", "NARROW_CACHE", "OUTPUT_CACHE", "QUANT_CACHE",
            "INPUT_CACHE", "LAYER_CACHE", "FLOAT_CACHE", "SUM_CACHE", "TABLE_CACHE",
            "WEIGHT_CACHE",
-           "clear_caches", "cache_stats"]  # fmt: skip
+           "DOMAIN_CACHE", "clear_caches", "cache_stats"]  # fmt: skip
 
 
 _MISSING = object()
@@ -77,11 +77,15 @@ OUTPUT_CACHE = LRU(256)
 #: be reused while cached): whether it never decreases, and its copy in the codes' narrowest type
 MONOTONE_CACHE = LRU(64)
 NARROW_CACHE = LRU(64)
+#: one layer's steps 4-7 tables over a range of sums (compiled path) by the fields they read and
+#: the range (each entry holds its activation table, as above): the image, slices and cube of one
+#: explorer update share them
+DOMAIN_CACHE = LRU(16)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
           "sums": SUM_CACHE, "table": TABLE_CACHE,
           "weights": WEIGHT_CACHE, "output": OUTPUT_CACHE, "monotone": MONOTONE_CACHE,
-          "narrow_table": NARROW_CACHE}  # fmt: skip
+          "narrow_table": NARROW_CACHE, "domain": DOMAIN_CACHE}  # fmt: skip
 
 
 def clear_caches() -> None:

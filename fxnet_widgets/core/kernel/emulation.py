@@ -15,13 +15,14 @@ from .caches import FLOAT_CACHE, LAYER_CACHE, SUM_CACHE
 from .evaluate import Bounds, LayerOut, Prepared, frozen, prepare, run_layer, sums_and_bounds
 from .layers import DATA_EVENTS, EVENT_NAMES, IntegerLayer, IntegerNetwork
 
-__all__ = ["Emulation", "emulate"]
+__all__ = ["Emulation", "emulate", "class_dtype"]
 
 
 _DECIDE_ROWS = 1 << 20
 
 
-def _class_dtype(n_classes: int) -> type:
+def class_dtype(n_classes: int) -> type:
+    """The narrowest unsigned integer type that holds every class index below ``n_classes``."""
     for dt in (np.uint8, np.uint16, np.uint32):
         if n_classes - 1 <= np.iinfo(dt).max:
             return dt
@@ -41,7 +42,7 @@ class _FloatRef:
         if self._decisions is None:
             # Network.decide block by block, held like Emulation.decisions (no int64 copy of a frame)
             out = self.out.reshape(-1, self.out.shape[-1])
-            dec: np.ndarray = np.empty(out.shape[0], dtype=_class_dtype(out.shape[1]))
+            dec: np.ndarray = np.empty(out.shape[0], dtype=class_dtype(out.shape[1]))
             for a in range(0, out.shape[0], _DECIDE_ROWS):
                 dec[a : a + _DECIDE_ROWS] = self.network.decide(out[a : a + _DECIDE_ROWS])
             dec.setflags(write=False)
@@ -85,7 +86,7 @@ class Emulation:
             assert intnet.threshold_code is not None
             dec = (last[0] >= intnet.threshold_code).view(np.uint8)
         else:
-            dec = np.argmax(last, axis=0).astype(_class_dtype(last.shape[0]))
+            dec = np.argmax(last, axis=0).astype(class_dtype(last.shape[0]))
         dec.setflags(write=False)
         self._decisions = dec
 

@@ -23,7 +23,7 @@ from ..formats import signed_range
 from ..network import as_codes
 from . import _compiled
 from .accumulate import post_accumulate, smallest_int
-from .caches import INPUT_CACHE, MONOTONE_CACHE
+from .caches import DOMAIN_CACHE, INPUT_CACHE, MONOTONE_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
 
 __all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen",
@@ -400,6 +400,16 @@ def _acc_pieces(layer: IntegerLayer, u0: int, u1: int) -> list[tuple[int, int, i
     return pieces
 
 
+def _cached_tables(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    """:func:`layer_tables`, kept by the fields steps 4-7 read (the layer's plan, activation, input
+    format, shift, address and output formats, its table by identity, held) and the range."""
+    table = layer.table
+    key = (layer.plan, layer.activation, layer.inputs, layer.shift, layer.address, layer.output,
+           None if table is None else id(table), u0, u1, np.dtype(code_dt).str)  # fmt: skip
+    held, value = DOMAIN_CACHE.get(key, lambda: (table, layer_tables(layer, u0, u1, code_dt)))
+    return value if held is table else layer_tables(layer, u0, u1, code_dt)
+
+
 def layer_tables(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> tuple[np.ndarray, np.ndarray] | None:
     """The codes and event bits (empty: none) of steps 4-7 for every sum in ``[u0, u1]``, the values of
     :func:`.accumulate.post_accumulate` on each, from far fewer evaluations (None: not applicable).
@@ -500,7 +510,10 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
     if kern is not None and n:
         u0 = min(lo + m0 for lo, (m0, _) in zip(layer.sum_min, ms))
         u1 = max(lo + m1 for lo, (_, m1) in zip(layer.sum_min, ms))
-        lt = layer_tables(layer, u0, u1, code_dt)
+        g0, g1 = min(layer.sum_min), max(layer.sum_max)  # every sum the layer can form
+        if g1 - g0 <= 2 * (u1 - u0) + (1 << 16):  # not much more: over all of them, so other data shares it
+            u0, u1 = g0, g1
+        lt = _cached_tables(layer, u0, u1, code_dt)
         st = _layer_stepped(layer, ms, code_dt) if lt is None else None
     shared = _shared_domain(layer, ms, n, kern is not None) if st is None and lt is None else None
     alo, ahi = signed_range(layer.plan.acc_bits)
