@@ -45,37 +45,40 @@ def _loop() -> Any:
         if _LOOP is None:
             import numba  # noqa: PLC0415 - only once the kernel has loaded it
 
-            @numba.njit(cache=True, nogil=True)
-            def voxels(img, fx, fl, faint, dot_x, dot_y, dot_ok, order, pad, side, base, offsets, edge, inner, rim,
-                       binary):  # type: ignore[no-untyped-def]  # fmt: skip # pragma: no cover
-                size = img.shape[0]
+            @numba.njit(cache=True, nogil=True, boundscheck=False)
+            def voxels(img, size, fx, fl, faint, dot_pixel, dot_ok, voxel, side, base, sq_y, sq_x, oy, ox, edge,
+                       inner, rim, binary):  # type: ignore[no-untyped-def]  # fmt: skip # pragma: no cover
+                # img: the picture's size x size x 3 bytes, flat; voxel, base, sq_y, sq_x, inner and rim
+                # in painting order (depth level, then voxel index)
                 nv = fx.shape[0]
                 for v in range(nv):  # faint dots: agreeing voxels of a non-zero class
                     if fx[v] == fl[v] and fx[v] != 0 and dot_ok[v]:
-                        for ch in range(3):
-                            img[dot_y[v], dot_x[v], ch] = faint[ch]
+                        p = 3 * np.int64(dot_pixel[v])
+                        img[p], img[p + 1], img[p + 2] = faint[0], faint[1], faint[2]
                 # the squares nearest first, each pixel written once: the pixel the numpy painter
-                # writes last (nearest level, then highest voxel index) is the one written here first
-                painted = np.zeros(side * side, dtype=np.bool_)
-                covered = np.zeros(side * side, dtype=np.bool_)  # footprints a nearer square took whole
+                # writes last (nearest level, then highest voxel index) is the one written here first;
+                # a square whose footprint (base) a nearer square took is skipped whole
+                painted = np.zeros(size * size, dtype=np.bool_)
+                covered = np.zeros(side * side, dtype=np.bool_)
                 for t in range(nv - 1, -1, -1):
-                    v = order[t]
-                    if fx[v] == fl[v] or covered[base[v]]:
+                    v = voxel[t]
+                    if fx[v] == fl[v] or covered[base[t]]:
                         continue
-                    covered[base[v]] = True
+                    covered[base[t]] = True
                     kind = 2 if not binary else (0 if fx[v] > fl[v] else 1)
-                    ci, cr = inner[kind, v], rim[kind, v]
-                    for o in range(offsets.shape[0]):
-                        q = base[v] + offsets[o]
-                        if painted[q]:
-                            continue
-                        painted[q] = True
-                        y, x = q // side - pad, q % side - pad
+                    ci, cr = inner[kind, t], rim[kind, t]
+                    cy, cx = np.int64(sq_y[t]), np.int64(sq_x[t])
+                    for o in range(oy.shape[0]):
+                        y, x = cy + oy[o], cx + ox[o]
                         if 0 <= y < size and 0 <= x < size:
+                            q = y * size + x
+                            if painted[q]:
+                                continue
+                            painted[q] = True
                             c = cr if edge[o] else ci
-                            img[y, x, 0] = (c >> 16) & 255
-                            img[y, x, 1] = (c >> 8) & 255
-                            img[y, x, 2] = c & 255
+                            img[3 * q] = (c >> 16) & 255
+                            img[3 * q + 1] = (c >> 8) & 255
+                            img[3 * q + 2] = c & 255
 
             _LOOP = voxels
     return _LOOP

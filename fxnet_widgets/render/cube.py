@@ -82,6 +82,11 @@ class _Geometry:
     order: np.ndarray  # the voxels by depth level (stable): the painter's order
     inner: np.ndarray  # (3, voxels) packed 0xRRGGBB square colours, shaded: fixed only, float only, differ
     rim: np.ndarray  # and their darker rims
+    sq_y: np.ndarray  # per voxel, its square's centre on the picture (row, column)
+    sq_x: np.ndarray
+    oy: np.ndarray  # a square's pixels around its centre (row, column offsets; ``offsets`` flattened)
+    ox: np.ndarray
+    by_order: Any  # _ByOrder
 
 
 @functools.lru_cache(maxsize=8)
@@ -110,15 +115,38 @@ def _geometry(n: int, size: int) -> _Geometry:
         + pad
     )
     offsets = oy * side + ox
+    sq_y = np.clip(yi, -pad + half, size + pad - half - 1)  # the squares' centres, as base holds them
+    sq_x = np.clip(xi, -pad + half, size + pad - half - 1)
     lines, letters = _overlay(corners, front, size)
     order = np.argsort(level, kind="stable")
     colours = np.array([FIXED_ONLY, FLOAT_ONLY, DISAGREE], dtype=np.int64)
     inner = np.stack([_packed(c * shade) for c in colours])
     rim = np.stack([_packed(c * shade * 0.78) for c in colours])
-    for a in (img, xi, yi, ok, level, shade, base, offsets, edge, lines, order, inner, rim):
+    oy, ox = np.ascontiguousarray(oy, dtype=np.int64), np.ascontiguousarray(ox, dtype=np.int64)
+    # for the compiled painter: what it reads per voxel, in painting order and small types (read once
+    # a picture, from memory other work has just filled: the bytes read are most of its time)
+    dot_pixel = np.where(ok, yi * size + xi, 0).astype(np.int32)
+    small = [order.astype(np.int32), base[order].astype(np.int32), sq_y[order].astype(np.int32),
+             sq_x[order].astype(np.int32), np.ascontiguousarray(inner[:, order]), np.ascontiguousarray(rim[:, order]),
+             dot_pixel]  # fmt: skip
+    by_order = _ByOrder(*small)
+    for a in (img, xi, yi, ok, level, shade, base, offsets, edge, lines, order, inner, rim, sq_y, sq_x, oy, ox, *small):
         a.setflags(write=False)
     return _Geometry(corners, front, img, xi, yi, ok, level, shade, base, offsets, edge, pad, side, lines, letters,
-                     order, inner, rim)  # fmt: skip
+                     order, inner, rim, sq_y, sq_x, oy, ox, by_order)  # fmt: skip
+
+
+@dataclass(frozen=True, eq=False)
+class _ByOrder:
+    """The compiled painter's per-voxel arrays, in painting order (``order``), and the dots' pixels."""
+
+    voxel: np.ndarray  # the voxel index
+    base: np.ndarray
+    sq_y: np.ndarray
+    sq_x: np.ndarray
+    inner: np.ndarray  # (3, voxels)
+    rim: np.ndarray
+    dot_pixel: np.ndarray  # per voxel (index order), the flat pixel of its dot (0 where off the picture)
 
 
 def _packed(rgb: np.ndarray) -> np.ndarray:
@@ -221,8 +249,9 @@ def render_cube(fixed: Any, float_: Any, size: int = 256, n_classes: int = 2) ->
     fxf, flf = fx.reshape(-1), fl.reshape(-1)
     loop = compiled()
     if loop is not None:  # dots and squares in one compiled pass (the same pixels: tests compare)
-        loop(img, fxf, flf, _FAINT, geo.dot_x, geo.dot_y, geo.dot_ok, geo.order, geo.pad, geo.side, geo.base,
-             geo.offsets, geo.edge, geo.inner, geo.rim, n_classes == 2)  # fmt: skip
+        bo = geo.by_order
+        loop(img.reshape(-1), size, fxf, flf, _FAINT, bo.dot_pixel, geo.dot_ok, bo.voxel, geo.side, bo.base, bo.sq_y,
+             bo.sq_x, geo.oy, geo.ox, geo.edge, bo.inner, bo.rim, n_classes == 2)  # fmt: skip
     else:
         _voxels_numpy(img, geo, fxf, flf, n_classes)
     _draw_overlay(img, geo)
