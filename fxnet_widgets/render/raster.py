@@ -13,6 +13,7 @@ each pixel's decision, so a test can read the decisions back.
 
 from __future__ import annotations
 
+import functools
 import io
 import struct
 import zlib
@@ -186,6 +187,25 @@ def ring_mask(points: Any, shape: tuple[int, int], radius: int, width: int = 2) 
     [1, 0, 0, 0, 1]
     """
     h, w = (int(v) for v in shape)
+    out = np.zeros(h * w, dtype=bool)
+    out[ring_pixels(points, (h, w), radius, width)] = True
+    return out.reshape(h, w)
+
+
+@functools.lru_cache(maxsize=16)
+def _annulus(r: int, width: int) -> tuple[np.ndarray, np.ndarray]:
+    dy, dx = np.mgrid[-r : r + 1, -r : r + 1]
+    d2 = dy * dy + dx * dx
+    keep = (d2 <= r * r) & (d2 > (r - width) ** 2)
+    dy, dx = dy[keep], dx[keep]
+    for a in (dy, dx):
+        a.setflags(write=False)
+    return dy, dx
+
+
+def ring_pixels(points: Any, shape: tuple[int, int], radius: int, width: int = 2) -> np.ndarray:
+    """The flat indices (row * W + column; repeats where rings overlap) of :func:`ring_mask`'s pixels."""
+    h, w = (int(v) for v in shape)
     if not isinstance(radius, (int, np.integer)) or radius < 1:
         raise ValueError(f"radius must be a positive integer, not {radius!r}")
     if not isinstance(width, (int, np.integer)) or not 1 <= width <= radius:
@@ -196,17 +216,11 @@ def ring_mask(points: Any, shape: tuple[int, int], radius: int, width: int = 2) 
             raise ValueError(f"points mask must have shape {(h, w)}, not {pts.shape}")
         pts = np.argwhere(pts)
     pts = pts.reshape(-1, 2).astype(np.int64)
-    r = int(radius)
-    dy, dx = np.mgrid[-r : r + 1, -r : r + 1]
-    d2 = dy * dy + dx * dx
-    keep = (d2 <= r * r) & (d2 > (r - int(width)) ** 2)
-    dy, dx = dy[keep], dx[keep]
+    dy, dx = _annulus(int(radius), int(width))
     ys = (pts[:, 0:1] + dy[None, :]).ravel()
     xs = (pts[:, 1:2] + dx[None, :]).ravel()
     ok = (ys >= 0) & (ys < h) & (xs >= 0) & (xs < w)
-    out = np.zeros((h, w), dtype=bool)
-    out[ys[ok], xs[ok]] = True
-    return out
+    return ys[ok] * w + xs[ok]
 
 
 def overlay_background(codes: Any) -> np.ndarray:
@@ -267,11 +281,13 @@ def overlay_png(
         if 0 < n <= MAX_RINGED:
             h, w = differ.shape
             radius = max(3, round(max(h, w) / 40))
-            pts = np.argwhere(differ)
-            outer = ring_mask(pts, (h, w), radius + 1, 1)
-            inner = ring_mask(pts, (h, w), radius, max(1, radius // 4))
-            idx[outer & ~differ] = _GREY_LEVELS + 3
-            idx[inner & ~differ] = _GREY_LEVELS + 2
+            at = np.flatnonzero(differ)  # (a 1-D search: about a tenth of argwhere's time on 640x360)
+            pts = np.stack(np.divmod(at, w), axis=1)
+            flat, free = idx.reshape(-1), ~differ.reshape(-1)  # rings cover agreeing pixels only
+            outer = ring_pixels(pts, (h, w), radius + 1, 1)
+            inner = ring_pixels(pts, (h, w), radius, max(1, radius // 4))
+            flat[outer[free[outer]]] = _GREY_LEVELS + 3
+            flat[inner[free[inner]]] = _GREY_LEVELS + 2
     # idx + differ * (mark - idx) in uint8 (mod 256): the mark where they differ, idx elsewhere; one
     # arithmetic pass instead of a boolean-mask store (measured about 10x faster on 640x360 here)
     d = differ.view(np.uint8)
