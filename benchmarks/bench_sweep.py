@@ -87,8 +87,8 @@ import numba
 from fxnet_widgets.core.kernel import _compiled
 t = time.perf_counter()
 k = _compiled.kernels()
-x = np.zeros((3, 4), np.uint8); tabs = np.zeros((1, 3, 256), np.int64); o = np.empty((1, 4), np.int32)
-k.dense_sums(x, 0, tabs, o, np.empty(1, np.int64), np.empty(1, np.int64))
+x = np.zeros((3, 4), np.uint8); w = np.zeros((1, 3), np.int64); o = np.empty((1, 4), np.int32)
+k.dense_sums(x, w, np.zeros(1, np.int64), o, np.empty(1, np.int64), np.empty(1, np.int64))
 sp = np.zeros(4, np.int32); c = np.zeros(4, np.uint8); e = np.zeros(4, np.uint8); h = np.zeros(8, np.int64)
 k.lut_apply(sp, 0, c, e, c, h)
 k.stepped_apply(sp, 0, 1, c, e, np.zeros(4, np.int32), np.zeros((1, 2), np.uint8), np.zeros((1, 2), np.uint8), c, h)
