@@ -1,6 +1,6 @@
 """Fused per-sample loops of the kernel (numba), compiled on first use, cached on disk.
 
-The loops are pure gathers, integer additions and comparisons (no rounding, no overflow
+The loops are exact integer multiply-adds, gathers and comparisons (no rounding, no overflow
 mode: those stay in :mod:`..formats`, applied by :func:`.accumulate.post_accumulate`
 to the look-up domain):
 
