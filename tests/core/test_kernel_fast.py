@@ -131,6 +131,28 @@ def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round,
         assert fast["codes"][li][:200] == L["codes"]
 
 
+def _drawn_layer(data):
+    """One layer of a drawn network and plan, built (hypothesis draws every mode)."""
+    from fxnet_widgets.core.kernel import build
+
+    doc, plans, _bits, _n_in = draw_network_and_plan(data.draw, max_bits=9)
+    net, plan = fw.Network.from_dict(doc), fw.Plan.from_dict({"layers": plans})
+    return build.build_integer_network(net, plan).layers[data.draw(st.integers(0, len(plans) - 1))]
+
+
+def _steps_4_to_7(layer, u0, u1):
+    """post_accumulate on every sum of ``[u0, u1]``: its codes and its event bits (DATA_EVENTS order)."""
+    from fxnet_widgets.core.kernel import accumulate
+    from fxnet_widgets.core.kernel.layers import DATA_EVENTS
+
+    ref = accumulate.post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
+    bits = np.zeros(u1 - u0 + 1, dtype=np.int64)
+    for k, name in enumerate(DATA_EVENTS):
+        if ref[name] is not None:
+            bits |= ref[name].astype(np.int64) << k
+    return np.asarray(ref["codes"], dtype=np.int64), bits
+
+
 def _expanded(t, span):
     """The per-sum codes and event bits a :class:`Stepped` table stands for, over ``span`` sums."""
     d = np.arange(span)
@@ -149,13 +171,9 @@ def test_stepped_table_equals_steps_4_to_7_on_every_sum(data):
     # the bucketed evaluation (post_accumulate on bucket starts and on the sums of buckets with a
     # step inside) must give, for every sum of the domain, the code and events of post_accumulate
     # on that sum (the contract's steps 4-7, :mod:`formats` rounding), for every mode drawn
-    from fxnet_widgets.core.kernel import accumulate, build
     from fxnet_widgets.core.kernel import evaluate as kev
-    from fxnet_widgets.core.kernel.layers import DATA_EVENTS
 
-    doc, plans, _bits, _n_in = draw_network_and_plan(data.draw, max_bits=9)
-    net, plan = fw.Network.from_dict(doc), fw.Plan.from_dict({"layers": plans})
-    layer = build.build_integer_network(net, plan).layers[data.draw(st.integers(0, len(plans) - 1))]
+    layer = _drawn_layer(data)
     alo, ahi = -(1 << (layer.plan.acc_bits - 1)), (1 << (layer.plan.acc_bits - 1)) - 1
     lo, hi = max(min(layer.sum_min), alo), min(max(layer.sum_max), ahi)
     if lo > hi or not kev._monotone_on(layer, lo, hi):
@@ -165,13 +183,9 @@ def test_stepped_table_equals_steps_4_to_7_on_every_sum(data):
     t = kev.stepped(layer, u0, u1, np.int64)
     if t is None:  # too few sums to gain: nothing to check
         return
-    ref = accumulate.post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
-    bits = np.zeros(u1 - u0 + 1, dtype=np.int64)
-    for k, name in enumerate(DATA_EVENTS):
-        if ref[name] is not None:
-            bits |= ref[name].astype(np.int64) << k
+    ref_codes, bits = _steps_4_to_7(layer, u0, u1)
     codes, ev = _expanded(t, u1 - u0 + 1)
-    assert codes.tolist() == np.asarray(ref["codes"], dtype=np.int64).tolist()
+    assert codes.tolist() == ref_codes.tolist()
     assert ev.tolist() == bits.tolist()
 
 
@@ -181,13 +195,9 @@ def test_layer_tables_equal_steps_4_to_7_on_every_sum_overflow_included(data):
     # the piecewise tables (s_A's runs and held values from formats' wrap and saturate at the piece
     # ends, steps 5-7 from the bucketed evaluation) must give, for every sum of a domain that may
     # reach beyond the accumulator, post_accumulate's code and events on that sum
-    from fxnet_widgets.core.kernel import accumulate, build
     from fxnet_widgets.core.kernel import evaluate as kev
-    from fxnet_widgets.core.kernel.layers import DATA_EVENTS
 
-    doc, plans, _bits, _n_in = draw_network_and_plan(data.draw, max_bits=9)
-    net, plan = fw.Network.from_dict(doc), fw.Plan.from_dict({"layers": plans})
-    layer = build.build_integer_network(net, plan).layers[data.draw(st.integers(0, len(plans) - 1))]
+    layer = _drawn_layer(data)
     lo, hi = min(layer.sum_min), max(layer.sum_max)
     u0 = data.draw(st.integers(lo, hi))
     u1 = data.draw(st.integers(u0, min(hi, u0 + 300_000)))
@@ -195,13 +205,9 @@ def test_layer_tables_equal_steps_4_to_7_on_every_sum_overflow_included(data):
     if got is None:  # a table that decreases somewhere, or too many turns of a wrapping accumulator
         assert (layer.table is not None and not kev._monotone(layer.table)) or kev._acc_pieces(layer, u0, u1) is None
         return
-    ref = accumulate.post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
-    bits = np.zeros(u1 - u0 + 1, dtype=np.int64)
-    for k, name in enumerate(DATA_EVENTS):
-        if ref[name] is not None:
-            bits |= ref[name].astype(np.int64) << k
+    ref_codes, bits = _steps_4_to_7(layer, u0, u1)
     codes, ev = got
-    assert codes.tolist() == np.asarray(ref["codes"], dtype=np.int64).tolist()
+    assert codes.tolist() == ref_codes.tolist()
     assert (ev.astype(np.int64) if ev.shape[0] else np.zeros_like(bits)).tolist() == bits.tolist()
 
 
