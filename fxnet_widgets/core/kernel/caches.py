@@ -79,8 +79,8 @@ MONOTONE_CACHE = LRU(64)
 NARROW_CACHE = LRU(64)
 #: one layer's steps 4-7 tables over a range of sums (compiled path) by the fields they read and
 #: the range (each entry holds its activation table, as above): the image, slices and cube of one
-#: explorer update share them
-DOMAIN_CACHE = LRU(16)
+#: explorer update share them; a few MB an entry at most (2**21 sums), so few entries
+DOMAIN_CACHE = LRU(6)
 
 _NAMED = {"quantise": QUANT_CACHE, "input": INPUT_CACHE, "layer": LAYER_CACHE, "float": FLOAT_CACHE,
           "sums": SUM_CACHE, "table": TABLE_CACHE,

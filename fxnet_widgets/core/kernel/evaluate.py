@@ -263,9 +263,17 @@ def _event_bits(out: dict[str, Any], size: int) -> np.ndarray:
     return ev
 
 
+#: per event (DATA_EVENTS order), the histogram bins of event bits that hold it
+_BINS_WITH = tuple(tuple(c for c in range(8) if c >> bit & 1) for bit in range(len(DATA_EVENTS)))
+
+
 def _add_hist(counts: dict[str, np.ndarray], j: int, hist: np.ndarray) -> None:
-    for bit, name in enumerate(DATA_EVENTS):
-        counts[name][j] += int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
+    """Add neuron ``j``'s samples by event bits (an 8-bin histogram) to the per-event counts."""
+    h = hist.tolist()
+    if h[1:] == [0] * 7:  # no event: the common case
+        return
+    for name, bins in zip(DATA_EVENTS, _BINS_WITH):
+        counts[name][j] += sum(h[c] for c in bins)
 
 
 def _monotone(table: np.ndarray) -> bool:
