@@ -46,7 +46,7 @@ def _run(net, plan, codes, path):
 def test_compiled_path_equals_numpy_reference(case):
     net, plan, codes = case
     ref = _run(net, plan, codes, "numpy")
-    fast = _run(net, plan, codes, "compiled")
+    fast = _run(net, plan, codes, "numba")
     assert fast == ref
     # and both equal the contract run on Python ints (a slice: the slow reference is slow)
     sub = codes[:40].tolist()
@@ -80,7 +80,7 @@ def test_event_counts_on_a_sweep_like_plan_match_the_numpy_path():
     plan = fw.Plan.uniform(net, weight_bits=9, weight_frac=5, acc_bits=16, acc_overflow="wrap", table_bits=5,
                            table_frac=4, out_bits=6)  # fmt: skip
     ref = _run(net, plan, codes, "numpy")
-    fast = _run(net, plan, codes, "compiled")
+    fast = _run(net, plan, codes, "numba")
     assert fast == ref
     assert sum(sum(e["table_high"]) + sum(e["table_low"]) for e in fast["events"]) > 0
     assert sum(sum(e["acc_overflow"]) for e in fast["events"]) > 0
@@ -120,7 +120,7 @@ def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round,
     if not expanded:  # the tables read by buckets (a layer whose sums span more than can be expanded)
         monkeypatch.setattr(kev, "_EXPAND_MAX", 0)
     ref = _run(net, plan, codes, "numpy")
-    fast = _run(net, plan, codes, "compiled")
+    fast = _run(net, plan, codes, "numba")
     assert calls, "the bucket path must have run"
     assert bool(reads) != expanded
     assert fast == ref
@@ -230,7 +230,27 @@ def test_piecewise_tables_on_an_overflowing_accumulator_match_the_numpy_path(mon
     real = kev.layer_tables
     monkeypatch.setattr(kev, "layer_tables", lambda *a: calls.append(real(*a)) or calls[-1])
     ref = _run(net, plan, codes, "numpy")
-    fast = _run(net, plan, codes, "compiled")
+    fast = _run(net, plan, codes, "numba")
     assert any(c is not None for c in calls), "the piecewise tables must have been used"
     assert fast == ref
     assert sum(sum(e["acc_overflow"]) for e in fast["events"]) > 0
+
+
+def test_a_neuron_without_overflow_takes_its_own_buckets_when_another_overflows(monkeypatch):
+    # no layer table (as for sums spanning more than can be expanded): one neuron's sums overflow
+    # the 18-bit accumulator, so the layer's union is not monotone; the other neuron's (up to ~10**5)
+    # do not, and it is read by buckets of its own; both must give the numpy path's results
+    from fxnet_widgets.core.kernel import evaluate as kev
+
+    monkeypatch.setattr(kev, "_EXPAND_MAX", 0)
+    net = fw.Network.from_layers([(np.array([[0.5, 0.4, 0.45], [8.0, 7.5, 8.2]]), [0.1, -0.2], "sigmoid")])
+    codes = np.random.default_rng(5).integers(0, 256, (30000, 3), dtype=np.uint8)
+    plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=18, table_bits=9, table_frac=5, out_bits=8)
+    spans = []
+    real = kev.stepped
+    monkeypatch.setattr(kev, "stepped", lambda layer, u0, u1, dt: spans.append(u1 - u0) or real(layer, u0, u1, dt))
+    ref = _run(net, plan, codes, "numpy")
+    fast = _run(net, plan, codes, "numba")
+    assert spans, "the neuron's own buckets must have been used"
+    assert fast == ref
+    assert sum(fast["events"][0]["acc_overflow"]) > 0 and fast["events"][0]["acc_overflow"][0] == 0
