@@ -410,6 +410,8 @@ def _cached_tables(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> tuple
     table = layer.table
     key = (layer.plan, layer.activation, layer.inputs, layer.shift, layer.address, layer.output,
            None if table is None else id(table), u0, u1, np.dtype(code_dt).str)  # fmt: skip
+    # (shared by every reader of the cache, which only reads them; left writable so the compiled
+    # look-up keeps one signature for all its tables)
     held, value = DOMAIN_CACHE.get(key, lambda: (table, layer_tables(layer, u0, u1, code_dt)))
     return value if held is table else layer_tables(layer, u0, u1, code_dt)
 
@@ -515,7 +517,7 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         u0 = min(lo + m0 for lo, (m0, _) in zip(layer.sum_min, ms))
         u1 = max(lo + m1 for lo, (_, m1) in zip(layer.sum_min, ms))
         g0, g1 = min(layer.sum_min), max(layer.sum_max)  # every sum the layer can form
-        if g1 - g0 <= 2 * (u1 - u0) + (1 << 16):  # not much more: over all of them, so other data shares it
+        if g1 - g0 <= min(2 * (u1 - u0) + (1 << 16), _EXPAND_MAX - 1):  # not much more: all, for other data too
             u0, u1 = g0, g1
         lt = _cached_tables(layer, u0, u1, code_dt)
         st = _layer_stepped(layer, ms, code_dt) if lt is None else None
