@@ -79,11 +79,8 @@ class _Geometry:
     side: int
     lines: np.ndarray  # flat pixel indices of the front edges
     letters: tuple  # per axis letter: (flat pixel indices, coverage, colour)
-    order: np.ndarray  # the voxels by depth level (stable): the painter's order
     inner: np.ndarray  # (3, voxels) packed 0xRRGGBB square colours, shaded: fixed only, float only, differ
     rim: np.ndarray  # and their darker rims
-    sq_y: np.ndarray  # per voxel, its square's centre on the picture (row, column)
-    sq_x: np.ndarray
     oy: np.ndarray  # a square's pixels around its centre (row, column offsets; ``offsets`` flattened)
     ox: np.ndarray
     by_order: Any  # _ByOrder
@@ -115,10 +112,11 @@ def _geometry(n: int, size: int) -> _Geometry:
         + pad
     )
     offsets = oy * side + ox
-    sq_y = np.clip(yi, -pad + half, size + pad - half - 1)  # the squares' centres, as base holds them
+    # the squares' centres on the picture (row, column), as base holds them on the padded canvas
+    sq_y = np.clip(yi, -pad + half, size + pad - half - 1)
     sq_x = np.clip(xi, -pad + half, size + pad - half - 1)
     lines, letters = _overlay(corners, front, size)
-    order = np.argsort(level, kind="stable")
+    order = np.argsort(level, kind="stable")  # the painter's order: by depth level, then voxel index
     colours = np.array([FIXED_ONLY, FLOAT_ONLY, DISAGREE], dtype=np.int64)
     inner = np.stack([_packed(c * shade) for c in colours])
     rim = np.stack([_packed(c * shade * 0.78) for c in colours])
@@ -130,10 +128,10 @@ def _geometry(n: int, size: int) -> _Geometry:
              sq_x[order].astype(np.int32), np.ascontiguousarray(inner[:, order]), np.ascontiguousarray(rim[:, order]),
              dot_pixel]  # fmt: skip
     by_order = _ByOrder(*small)
-    for a in (img, xi, yi, ok, level, shade, base, offsets, edge, lines, order, inner, rim, sq_y, sq_x, oy, ox, *small):
+    for a in (img, xi, yi, ok, level, shade, base, offsets, edge, lines, inner, rim, oy, ox, *small):
         a.setflags(write=False)
     return _Geometry(corners, front, img, xi, yi, ok, level, shade, base, offsets, edge, pad, side, lines, letters,
-                     order, inner, rim, sq_y, sq_x, oy, ox, by_order)  # fmt: skip
+                     inner, rim, oy, ox, by_order)  # fmt: skip
 
 
 @dataclass(frozen=True, eq=False)
