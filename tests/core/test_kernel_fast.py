@@ -111,14 +111,14 @@ def test_bucket_tables_give_the_exact_codes_and_events(monkeypatch, index_round,
     codes = rng.integers(0, 256, (30000, 3), dtype=np.uint8)
     plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=30, index_round=index_round,
                            table_bits=7, table_frac=4, out_bits=8)  # fmt: skip
-    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel import steps
 
     calls, reads = [], []
-    real, read = kev.stepped, _compiled.kernels().stepped_apply
-    monkeypatch.setattr(kev, "stepped", lambda *a: calls.append(1) or real(*a))
+    real, read = steps.stepped, _compiled.kernels().stepped_apply
+    monkeypatch.setattr(steps, "stepped", lambda *a: calls.append(1) or real(*a))
     monkeypatch.setattr(_compiled.kernels(), "stepped_apply", lambda *a: reads.append(1) or read(*a))
     if not expanded:  # the tables read by buckets (a layer whose sums span more than can be expanded)
-        monkeypatch.setattr(kev, "_EXPAND_MAX", 0)
+        monkeypatch.setattr(steps, "EXPAND_MAX", 0)
     ref = _run(net, plan, codes, "numpy")
     fast = _run(net, plan, codes, "numba")
     assert calls, "the bucket path must have run"
@@ -171,16 +171,16 @@ def test_stepped_table_equals_steps_4_to_7_on_every_sum(data):
     # the bucketed evaluation (post_accumulate on bucket starts and on the sums of buckets with a
     # step inside) must give, for every sum of the domain, the code and events of post_accumulate
     # on that sum (the contract's steps 4-7, :mod:`formats` rounding), for every mode drawn
-    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel import steps
 
     layer = _drawn_layer(data)
     alo, ahi = -(1 << (layer.plan.acc_bits - 1)), (1 << (layer.plan.acc_bits - 1)) - 1
     lo, hi = max(min(layer.sum_min), alo), min(max(layer.sum_max), ahi)
-    if lo > hi or not kev._monotone_on(layer, lo, hi):
+    if lo > hi or not steps.monotone_on(layer, lo, hi):
         return
     u0 = data.draw(st.integers(lo, hi))
     u1 = data.draw(st.integers(u0, min(hi, u0 + 200_000)))
-    t = kev.stepped(layer, u0, u1, np.int64)
+    t = steps.stepped(layer, u0, u1, np.int64)
     if t is None:  # too few sums to gain: nothing to check
         return
     ref_codes, bits = _steps_4_to_7(layer, u0, u1)
@@ -195,15 +195,15 @@ def test_layer_tables_equal_steps_4_to_7_on_every_sum_overflow_included(data):
     # the piecewise tables (s_A's runs and held values from formats' wrap and saturate at the piece
     # ends, steps 5-7 from the bucketed evaluation) must give, for every sum of a domain that may
     # reach beyond the accumulator, post_accumulate's code and events on that sum
-    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel import steps
 
     layer = _drawn_layer(data)
     lo, hi = min(layer.sum_min), max(layer.sum_max)
     u0 = data.draw(st.integers(lo, hi))
     u1 = data.draw(st.integers(u0, min(hi, u0 + 300_000)))
-    got = kev.layer_tables(layer, u0, u1, np.int64)
+    got = steps.layer_tables(layer, u0, u1, np.int64)
     if got is None:  # a table that decreases somewhere, or too many turns of a wrapping accumulator
-        assert (layer.table is not None and not kev._monotone(layer.table)) or kev._acc_pieces(layer, u0, u1) is None
+        assert (layer.table is not None and not steps.monotone(layer.table)) or steps.acc_pieces(layer, u0, u1) is None
         return
     ref_codes, bits = _steps_4_to_7(layer, u0, u1)
     codes, ev = got
@@ -217,7 +217,7 @@ def test_piecewise_tables_on_an_overflowing_accumulator_match_the_numpy_path(mon
     # sums of up to about 2**20 in a 15..18-bit accumulator: s_A wraps several turns or holds its
     # ends; codes, events and s_A itself (read, so the table made on first use is made) must be
     # the numpy path's, and overflows must be counted
-    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel import steps
 
     rng = np.random.default_rng(acc_bits)
     net = fw.Network.from_layers(
@@ -227,8 +227,8 @@ def test_piecewise_tables_on_an_overflowing_accumulator_match_the_numpy_path(mon
     plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=acc_bits, acc_overflow=acc_overflow,
                            table_bits=9, table_frac=5, out_bits=8)  # fmt: skip
     calls = []
-    real = kev.layer_tables
-    monkeypatch.setattr(kev, "layer_tables", lambda *a: calls.append(real(*a)) or calls[-1])
+    real = steps.layer_tables
+    monkeypatch.setattr(steps, "layer_tables", lambda *a: calls.append(real(*a)) or calls[-1])
     ref = _run(net, plan, codes, "numpy")
     fast = _run(net, plan, codes, "numba")
     assert any(c is not None for c in calls), "the piecewise tables must have been used"
@@ -240,15 +240,15 @@ def test_a_neuron_without_overflow_takes_its_own_buckets_when_another_overflows(
     # no layer table (as for sums spanning more than can be expanded): one neuron's sums overflow
     # the 18-bit accumulator, so the layer's union is not monotone; the other neuron's (up to ~10**5)
     # do not, and it is read by buckets of its own; both must give the numpy path's results
-    from fxnet_widgets.core.kernel import evaluate as kev
+    from fxnet_widgets.core.kernel import steps
 
-    monkeypatch.setattr(kev, "_EXPAND_MAX", 0)
+    monkeypatch.setattr(steps, "EXPAND_MAX", 0)
     net = fw.Network.from_layers([(np.array([[0.5, 0.4, 0.45], [8.0, 7.5, 8.2]]), [0.1, -0.2], "sigmoid")])
     codes = np.random.default_rng(5).integers(0, 256, (30000, 3), dtype=np.uint8)
     plan = fw.Plan.uniform(net, weight_bits=14, weight_frac=8, acc_bits=18, table_bits=9, table_frac=5, out_bits=8)
     spans = []
-    real = kev.stepped
-    monkeypatch.setattr(kev, "stepped", lambda layer, u0, u1, dt: spans.append(u1 - u0) or real(layer, u0, u1, dt))
+    real = steps.stepped
+    monkeypatch.setattr(steps, "stepped", lambda layer, u0, u1, dt: spans.append(u1 - u0) or real(layer, u0, u1, dt))
     ref = _run(net, plan, codes, "numpy")
     fast = _run(net, plan, codes, "numba")
     assert spans, "the neuron's own buckets must have been used"

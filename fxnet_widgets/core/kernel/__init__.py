@@ -21,6 +21,7 @@ Modules, one job each:
 ``build``       steps 1-7: :func:`build_integer_network` builds the integer network
 ``accumulate``  steps 4-7 on exact sums (:func:`post_accumulate`)
 ``evaluate``    the fast paths: per-image decomposition, exact sums, one layer's run
+``steps``       steps 4-7 over ranges of sums from few evaluations (the compiled path's per-layer tables)
 ``emulation``   :func:`emulate` and its result, :class:`Emulation`
 
 Examples

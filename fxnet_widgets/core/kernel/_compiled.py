@@ -10,7 +10,7 @@ to the look-up domain):
                 the first layer reads the per-input code columns stacked
 ``lut_apply``   a neuron's codes read from its steps 4-7 look-up table and the
                 histogram of its event bits, in one pass (numpy: three)
-``stepped_apply`` the same from a table over buckets of ``2**b`` sums (:func:`.evaluate.stepped`,
+``stepped_apply`` the same from a table over buckets of ``2**b`` sums (:func:`.steps.stepped`,
                 for a layer whose steps 4-7 are monotone in the sum): a bucket without a step
                 inside holds one code and events throughout; the others have exact rows
 ``shifted_counts`` a histogram of ``(sum - origin) >> shift`` (a view's neuron histogram), one pass

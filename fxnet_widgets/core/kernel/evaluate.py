@@ -18,16 +18,16 @@ from typing import Any
 
 import numpy as np
 
-from .. import formats
 from ..formats import signed_range
 from ..network import as_codes
-from . import _compiled
+from . import _compiled, steps
 from .accumulate import post_accumulate, smallest_int
-from .caches import DOMAIN_CACHE, INPUT_CACHE, MONOTONE_CACHE
+from .caches import INPUT_CACHE
 from .layers import DATA_EVENTS, IntegerLayer
+from .steps import LUT_MAX as _LUT_MAX
+from .steps import event_bits
 
-__all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen",
-           "Stepped", "stepped", "expand"]
+__all__ = ["Prepared", "prepare", "layer_sums", "sums_and_bounds", "LayerOut", "run_layer", "frozen"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -83,7 +83,6 @@ def prepare(codes: Any, bits: int, n_in: int) -> Prepared:
 # The exact sums are offset by the lower end of their interval (folded into the
 # first product table), so they are non-negative and index the per-neuron
 # look-up table of steps 4-7 directly.
-_LUT_MAX = 1 << 21
 _LUT_FRACTION = 1.0  # a table over more sums than samples costs more than it saves
 
 
@@ -255,14 +254,6 @@ class LayerOut:
 _COARSE_MIN_SPAN = 1 << 13  # below this many distinct sums the exact look-up table is cheap enough
 
 
-def _event_bits(out: dict[str, Any], size: int) -> np.ndarray:
-    ev = np.zeros(size, dtype=np.uint8)
-    for bit, name in enumerate(DATA_EVENTS):
-        if out[name] is not None:
-            ev |= out[name].astype(np.uint8) << np.uint8(bit)
-    return ev
-
-
 #: per event (DATA_EVENTS order), the histogram bins of event bits that hold it
 _BINS_WITH = tuple(tuple(c for c in range(8) if c >> bit & 1) for bit in range(len(DATA_EVENTS)))
 
@@ -274,186 +265,6 @@ def _add_hist(counts: dict[str, np.ndarray], j: int, hist: np.ndarray) -> None:
         return
     for name, bins in zip(DATA_EVENTS, _BINS_WITH):
         counts[name][j] += sum(h[c] for c in bins)
-
-
-def _monotone(table: np.ndarray) -> bool:
-    """Whether the (read-only, shared) activation table never decreases, checked once per table."""
-    held, flag = MONOTONE_CACHE.get(id(table), lambda: (table, bool(np.all(table[1:] >= table[:-1]))))
-    return bool(flag) if held is table else bool(np.all(table[1:] >= table[:-1]))
-
-
-@dataclass(frozen=True, eq=False)
-class Stepped:
-    """Steps 4-7 of one layer over the sums ``[u0, u1]`` in buckets of ``2**b`` sums (see :func:`stepped`)."""
-
-    u0: int
-    b: int
-    codes_q: np.ndarray  # per bucket, the code it holds throughout (where it has no step inside)
-    ev_q: np.ndarray  # per bucket, its event bits; 128 where a step lies inside
-    slot: np.ndarray  # per bucket, its row of the exact tables (-1: none)
-    exact_codes: np.ndarray  # (buckets with a step, 2**b): the code of each of their sums
-    exact_ev: np.ndarray  # and its event bits
-
-
-_STEPPED_MIN_SPAN = 1 << 13  # below this many sums one look-up table over them all is as cheap
-_EXPAND_MAX = _LUT_MAX  # longer bucketed tables are read by buckets, not expanded
-
-
-def stepped(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> Stepped | None:
-    """Steps 4-7 over the sums ``[u0, u1]``, exact, from far fewer evaluations than sums (None: no gain).
-
-    For a layer whose steps 4-7 are monotone on ``[u0, u1]`` (no sum there overflows the
-    accumulator, and the table never decreases; the caller checks): the code, ``table_low`` and
-    ``table_high`` are then monotone in the sum, so a bucket whose first sum and the next bucket's
-    agree on all three agrees throughout. :func:`.accumulate.post_accumulate` runs on every
-    bucket's first sum and on every sum of the buckets with a step inside, no others. The
-    bucket width ``2**b`` is about ``sqrt(span / steps)`` (a code range of ``c`` values has at
-    most ``c + 1`` steps), which makes the two evaluation counts alike.
-    """
-    span = u1 - u0 + 1
-    steps = max(1, min(span, layer.code_max - layer.code_min + 3))
-    b = ((span // steps).bit_length() - 1) // 2
-    if b <= 0:
-        return None
-    nb = ((span - 1) >> b) + 1
-    # every bucket's first sum, and u1 after the last (a step just at the next bucket's start only
-    # sends this bucket to the exact rows)
-    pts = u0 + (np.arange(nb + 1, dtype=np.int64) << np.int64(b))
-    pts[nb] = u1
-    out = post_accumulate(layer, pts, u0, u1)
-    c, ev = out["codes"], _event_bits(out, nb + 1)
-    step = (c[:nb] != c[1:]) | (ev[:nb] != ev[1:])
-    ev_q = ev[:nb].copy()
-    ev_q[step] = 128
-    rows = np.flatnonzero(step)
-    slot = np.full(nb, -1, dtype=np.int32)
-    slot[rows] = np.arange(rows.size, dtype=np.int32)
-    w = 1 << b
-    # the sums of the step buckets (the last bucket's beyond u1 repeat u1: never read)
-    sums = np.minimum((rows.astype(np.int64) << np.int64(b))[:, None] + (u0 + np.arange(w, dtype=np.int64)), u1)
-    if rows.size:
-        ex = post_accumulate(layer, sums.reshape(-1), u0, u1)
-        exact_codes = np.ascontiguousarray(ex["codes"], dtype=code_dt).reshape(rows.size, w)
-        exact_ev = _event_bits(ex, sums.size).reshape(rows.size, w)
-    else:
-        exact_codes, exact_ev = np.zeros((0, w), dtype=code_dt), np.zeros((0, w), dtype=np.uint8)
-    return Stepped(u0, b, np.ascontiguousarray(c[:nb], dtype=code_dt), ev_q, slot, exact_codes, exact_ev)
-
-
-def expand(t: Stepped) -> tuple[np.ndarray, np.ndarray]:
-    """The look-up tables a :class:`Stepped` stands for: per sum from ``t.u0`` on, its code and its
-    event bits (empty where no sum has an event); a bucket's repeated values, then the exact rows.
-    """
-    w, nb = 1 << t.b, t.codes_q.shape[0]
-    rows = np.flatnonzero(t.slot >= 0)
-    codes = np.empty((nb, w), dtype=t.codes_q.dtype)
-    codes[...] = t.codes_q[:, None]
-    codes[rows] = t.exact_codes
-    if not (np.any(t.ev_q & 127) or t.exact_ev.any()):
-        return codes.reshape(-1), np.zeros(0, dtype=np.uint8)
-    ev = np.empty((nb, w), dtype=np.uint8)
-    ev[...] = (t.ev_q & 127)[:, None]
-    ev[rows] = t.exact_ev
-    return codes.reshape(-1), ev.reshape(-1)
-
-
-def _monotone_on(layer: IntegerLayer, u0: int, u1: int) -> bool:
-    """Whether steps 4-7 are monotone in the sum on ``[u0, u1]`` (no overflow there, a table that never decreases)."""
-    alo, ahi = signed_range(layer.plan.acc_bits)
-    return alo <= u0 and u1 <= ahi and (layer.table is None or _monotone(layer.table))
-
-
-def _layer_stepped(layer: IntegerLayer, ms: list[tuple[int, int]], code_dt: Any) -> Stepped | None:
-    """One :func:`stepped` over the union of the layer's sums on the data (every neuron shares the
-    layer's steps 4-7), where it is exact and saves work; None: the other paths."""
-    u0 = min(lo + m0 for lo, (m0, _) in zip(layer.sum_min, ms))
-    u1 = max(lo + m1 for lo, (_, m1) in zip(layer.sum_min, ms))
-    if u1 - u0 + 1 < _STEPPED_MIN_SPAN or not _monotone_on(layer, u0, u1):
-        return None
-    return stepped(layer, u0, u1, code_dt)
-
-
-_MAX_PIECES = 64  # sums wrapping round the accumulator more often than this: the other paths
-
-
-def _acc_pieces(layer: IntegerLayer, u0: int, u1: int) -> list[tuple[int, int, int, int]] | None:
-    """``[u0, u1]`` cut where the accumulator value s_A stops following the sum: ``(p0, p1, a0, a1)``
-    per piece, s_A running from ``a0`` (at ``p0``) to ``a1`` (at ``p1``) one step a sum, or holding
-    one value (``a0 == a1``) where a saturated accumulator holds its end. s_A at the ends comes
-    from :mod:`..formats` (wrap and saturate are written there only). None: too many pieces.
-    """
-    p = layer.plan
-    alo, ahi = signed_range(p.acc_bits)
-    if alo <= u0 and u1 <= ahi:
-        return [(u0, u1, u0, u1)]
-    cuts = [u0]
-    if p.acc_overflow == "wrap":  # the accumulator wraps at its ends: a new piece at every turn
-        period = 1 << p.acc_bits
-        k0, k1 = (u0 - alo) // period, (u1 - alo) // period
-        if k1 - k0 + 1 > _MAX_PIECES:
-            return None
-        cuts += [alo + k * period for k in range(k0 + 1, k1 + 1)]
-    else:  # saturate: constant below and above the range
-        cuts += [c for c in (alo, ahi + 1) if u0 < c <= u1]
-    ends = [(a, b - 1) for a, b in zip(cuts, cuts[1:] + [u1 + 1])]
-    flat = np.array([v for e in ends for v in e], dtype=np.int64)
-    acc = formats.wrap(flat, p.acc_bits) if p.acc_overflow == "wrap" else formats.saturate(flat, p.acc_bits)
-    pieces = [(a, b, int(acc[2 * i]), int(acc[2 * i + 1])) for i, (a, b) in enumerate(ends)]
-    for p0, p1, a0, a1 in pieces:  # each piece one shifted run or one held value
-        assert a1 - a0 == p1 - p0 or a0 == a1, (p0, p1, a0, a1)
-    return pieces
-
-
-def _cached_tables(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> tuple[np.ndarray, np.ndarray] | None:
-    """:func:`layer_tables`, kept by the fields steps 4-7 read (the layer's plan, activation, input
-    format, shift, address and output formats, its table by identity, held) and the range."""
-    table = layer.table
-    key = (layer.plan, layer.activation, layer.inputs, layer.shift, layer.address, layer.output,
-           None if table is None else id(table), u0, u1, np.dtype(code_dt).str)  # fmt: skip
-    # (shared by every reader of the cache, which only reads them; left writable so the compiled
-    # look-up keeps one signature for all its tables)
-    held, value = DOMAIN_CACHE.get(key, lambda: (table, layer_tables(layer, u0, u1, code_dt)))
-    return value if held is table else layer_tables(layer, u0, u1, code_dt)
-
-
-def layer_tables(layer: IntegerLayer, u0: int, u1: int, code_dt: Any) -> tuple[np.ndarray, np.ndarray] | None:
-    """The codes and event bits (empty: none) of steps 4-7 for every sum in ``[u0, u1]``, the values of
-    :func:`.accumulate.post_accumulate` on each, from far fewer evaluations (None: not applicable).
-
-    For a layer whose table never decreases (or that has none): on accumulator values inside the
-    accumulator's range steps 5-7 are monotone, so :func:`stepped` evaluates them over the values
-    the sums reach; the sums are cut into pieces on which s_A runs one step a sum or holds one
-    value (:func:`_acc_pieces`); each piece's codes are a slice of those (or one value), and the
-    pieces where s_A differs from the sum carry the ``acc_overflow`` bit.
-    """
-    if (layer.table is not None and not _monotone(layer.table)) or u1 - u0 + 1 > _EXPAND_MAX:
-        return None
-    pieces = _acc_pieces(layer, u0, u1)
-    if pieces is None:
-        return None
-    v0, v1 = min(pc[2] for pc in pieces), max(pc[3] for pc in pieces)  # the accumulator values reached
-    t = stepped(layer, v0, v1, code_dt)
-    if t is not None:
-        vc, ve = expand(t)
-    else:
-        out = post_accumulate(layer, np.arange(v0, v1 + 1, dtype=np.int64), v0, v1)
-        vc, ve = np.ascontiguousarray(out["codes"], dtype=code_dt), _event_bits(out, v1 - v0 + 1)
-        if not ve.any():
-            ve = np.zeros(0, dtype=np.uint8)
-    span = u1 - u0 + 1
-    if len(pieces) == 1 and pieces[0][2] == u0 and pieces[0][3] == u1:  # s_A is the sum throughout
-        return vc[:span], ve[:span]
-    codes = np.empty(span, dtype=code_dt)
-    ev = np.zeros(span, dtype=np.uint8)
-    for p0, p1, a0, a1 in pieces:
-        dst = slice(p0 - u0, p1 - u0 + 1)
-        src = slice(a0 - v0, a1 - v0 + 1) if a1 - a0 == p1 - p0 else a0 - v0  # a run, or one held value
-        codes[dst] = vc[src]
-        if ve.shape[0]:
-            ev[dst] = ve[src]
-        if not (p0 == a0 and p1 == a1):
-            ev[dst] |= np.uint8(1 << DATA_EVENTS.index("acc_overflow"))
-    return codes, ev
 
 
 def _lut_fits(m0: int, m1: int, n: int) -> bool:
@@ -485,12 +296,18 @@ def _shared_domain(layer: IntegerLayer, ms: list[tuple[int, int]], n: int,
     return u0, u1, post_accumulate(layer, np.arange(u0, u1 + 1, dtype=np.int64), u0, u1)
 
 
-def _acc_table(layer: IntegerLayer, lo: int, m0: int, m1: int) -> np.ndarray:
-    """s_A of the sums ``lo + m0 .. lo + m1``, indexed by the offset sum (entries below ``m0`` never read)."""
-    acc = post_accumulate(layer, np.arange(lo + m0, lo + m1 + 1, dtype=np.int64), lo + m0, lo + m1)["acc"]
-    full = np.empty(m0 + acc.shape[0], dtype=acc.dtype)
-    full[m0:] = acc
+def _from_offset(v: np.ndarray, m0: int, dt: Any = None) -> np.ndarray:
+    """``v`` (values for the offset sums from ``m0`` on) as a table indexed by the offset sum itself
+    (entries below ``m0`` never read)."""
+    full = np.empty(m0 + v.shape[0], dtype=v.dtype if dt is None else dt)
+    full[m0:] = v
     return full
+
+
+def _acc_table(layer: IntegerLayer, lo: int, m0: int, m1: int) -> np.ndarray:
+    """s_A of the sums ``lo + m0 .. lo + m1``, indexed by the offset sum."""
+    acc = post_accumulate(layer, np.arange(lo + m0, lo + m1 + 1, dtype=np.int64), lo + m0, lo + m1)["acc"]
+    return _from_offset(np.asarray(acc), m0)
 
 
 def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | None = None) -> LayerOut:
@@ -517,15 +334,14 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         u0 = min(lo + m0 for lo, (m0, _) in zip(layer.sum_min, ms))
         u1 = max(lo + m1 for lo, (_, m1) in zip(layer.sum_min, ms))
         g0, g1 = min(layer.sum_min), max(layer.sum_max)  # every sum the layer can form
-        if g1 - g0 <= min(2 * (u1 - u0) + (1 << 16), _EXPAND_MAX - 1):  # not much more: all, for other data too
-            u0, u1 = g0, g1
-        lt = _cached_tables(layer, u0, u1, code_dt)
-        st = _layer_stepped(layer, ms, code_dt) if lt is None else None
+        if g1 - g0 <= min(2 * (u1 - u0) + (1 << 16), steps.EXPAND_MAX - 1):  # not much more: all, for other data too
+            lt, t0 = steps.cached_tables(layer, g0, g1, code_dt), g0
+        else:
+            lt, t0 = steps.cached_tables(layer, u0, u1, code_dt), u0
+        if lt is None and u1 - u0 + 1 >= steps.STEPPED_MIN_SPAN and steps.monotone_on(layer, u0, u1):
+            st = steps.stepped(layer, u0, u1, code_dt)  # longer than can be expanded: read by buckets
     shared = _shared_domain(layer, ms, n, kern is not None) if st is None and lt is None else None
     alo, ahi = signed_range(layer.plan.acc_bits)
-    # expanded into plain look-up tables where they are not too long: a gather a sample is about a
-    # third of a bucket look-up's time, and expanding costs about one byte written per sum
-    luts = expand(st) if st is not None and ((st.codes_q.shape[0] << st.b) <= _EXPAND_MAX) else None
     for j, sp in enumerate(shifted):
         lo = layer.sum_min[j]
         m0, m1 = ms[j]
@@ -534,7 +350,7 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
         if lt is not None:
             assert kern is not None
             seen = np.zeros(8, dtype=np.int64)  # samples by event bits
-            kern.lut_apply(sp, u0 - lo, lt[0], lt[1], codes[j], seen)
+            kern.lut_apply(sp, t0 - lo, lt[0], lt[1], codes[j], seen)
             _add_hist(counts, j, seen)
             if alo <= lo + m0 and lo + m1 <= ahi:
                 acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
@@ -543,18 +359,14 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
             continue
         span = m1 - m0 + 1
         wide = span >= max(_COARSE_MIN_SPAN, n // 2)  # an exact look-up table would cost about a pass per sample
-        own = None
-        if st is None and kern is not None and wide and _monotone_on(layer, lo + m0, lo + m1):
-            own = stepped(layer, lo + m0, lo + m1, code_dt)  # this neuron alone (another one overflows)
-        if st is not None or own is not None:
-            t = st if st is not None else own
-            assert t is not None and kern is not None
+        t = st
+        if t is None and kern is not None and wide and steps.monotone_on(layer, lo + m0, lo + m1):
+            t = steps.stepped(layer, lo + m0, lo + m1, code_dt)  # this neuron alone (another one overflows)
+        if t is not None:
+            assert kern is not None
             seen = np.zeros(8, dtype=np.int64)  # samples by event bits
-            if t is st and luts is not None:  # the expanded tables: one gather a sample
-                kern.lut_apply(sp, t.u0 - lo, luts[0], luts[1], codes[j], seen)
-            else:
-                kern.stepped_apply(sp, lo - t.u0, t.b, t.codes_q, t.ev_q, t.slot, t.exact_codes, t.exact_ev,
-                                   codes[j], seen)  # fmt: skip
+            kern.stepped_apply(sp, lo - t.u0, t.b, t.codes_q, t.ev_q, t.slot, t.exact_codes, t.exact_ev,
+                               codes[j], seen)  # fmt: skip
             _add_hist(counts, j, seen)
             acc_direct.append(None)  # no overflow on the data: s_A is the exact sum
             continue
@@ -568,34 +380,21 @@ def run_layer(layer: IntegerLayer, shifted: list[np.ndarray], bounds: Bounds | N
                 dom = np.arange(lo + m0, lo + m1 + 1, dtype=np.int64)
                 out = post_accumulate(layer, dom, lo + m0, lo + m1)
 
-            def lut(v: np.ndarray, dt: Any = None, m0: int = m0) -> np.ndarray:
-                # indexed by sp directly: entries below m0 are never read
-                full = np.empty(m0 + v.shape[0], dtype=v.dtype if dt is None else dt)
-                full[m0:] = v
-                return full
-
-            acc_lut = out["acc"]
             changed = out["acc_overflow"] is not None
-            acc_direct.append((lut(np.asarray(acc_lut)), sp) if changed else None)
-            flags = [out[k] for k in DATA_EVENTS]
-            ev = None
-            if any(f is not None and f.any() for f in flags):
-                ev = np.zeros(span, dtype=np.uint8)
-                for bit, f in enumerate(flags):
-                    if f is not None:
-                        ev |= f.astype(np.uint8) << np.uint8(bit)
+            acc_direct.append((_from_offset(np.asarray(out["acc"]), m0), sp) if changed else None)
+            bits = event_bits(out, span)
+            ev = bits if bits.any() else None
             hist: np.ndarray | None = None
             if kern is not None:  # one fused pass: codes and the event histogram
                 hist = np.zeros(8, dtype=np.int64)
                 ev_lut = ev if ev is not None else np.zeros(0, dtype=np.uint8)
                 kern.lut_apply(sp, m0, np.ascontiguousarray(out["codes"], dtype=code_dt), ev_lut, codes[j], hist)
             else:
-                gather(lut(out["codes"], code_dt), sp, codes[j])
-                hist = _bincount8(lut(ev), sp) if ev is not None else None
+                gather(_from_offset(out["codes"], m0, code_dt), sp, codes[j])
+                hist = _bincount8(_from_offset(ev, m0), sp) if ev is not None else None
             if ev is not None:
                 assert hist is not None
-                for bit, name in enumerate(DATA_EVENTS):
-                    counts[name][j] = int(sum(int(hist[c]) for c in range(8) if c >> bit & 1))
+                _add_hist(counts, j, hist)
         else:
             s = sp.astype(np.int64) + np.int64(lo)
             out = post_accumulate(layer, s, lo + m0, lo + m1)
